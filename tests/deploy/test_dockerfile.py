@@ -1,0 +1,162 @@
+"""deploy/Dockerfile: linted with hadolint, and checked for the properties the deployment relies on.
+
+The image is not built here (no Docker engine on the development machines):
+these tests check the file, not an image.
+"""
+
+from __future__ import annotations
+
+import fnmatch
+import json
+import re
+import shlex
+import subprocess
+import sys
+from pathlib import Path
+
+import pytest
+import yaml
+
+from tests.conftest import require_program
+from tests.deploy.support import DEPLOY, REPO
+
+DOCKERFILE = DEPLOY / "Dockerfile"
+
+
+def instructions() -> list[tuple[str, str]]:
+    """(INSTRUCTION, arguments) pairs, continuation lines joined, comments dropped."""
+    text = re.sub(r"\\\n", " ", DOCKERFILE.read_text(encoding="utf-8"))
+    result = []
+    for line in text.splitlines():
+        line = line.strip()
+        if not line or line.startswith("#"):
+            continue
+        keyword, _, rest = line.partition(" ")
+        result.append((keyword.upper(), rest.strip()))
+    return result
+
+
+def stages() -> list[list[tuple[str, str]]]:
+    """Instructions grouped by build stage (each starts with FROM)."""
+    groups: list[list[tuple[str, str]]] = []
+    for keyword, rest in instructions():
+        if keyword == "FROM":
+            groups.append([])
+        if groups:
+            groups[-1].append((keyword, rest))
+    return groups
+
+
+def env_of(stage: list[tuple[str, str]]) -> dict[str, str]:
+    env: dict[str, str] = {}
+    for keyword, rest in stage:
+        if keyword == "ENV":
+            for item in shlex.split(rest):
+                key, _, value = item.partition("=")
+                env[key] = value
+    return env
+
+
+def hadolint() -> str:
+    beside = Path(sys.executable).with_name("hadolint")
+    return str(beside) if beside.exists() else require_program("hadolint")
+
+
+def run_hadolint(path: Path) -> list[dict[str, object]]:
+    result = subprocess.run(
+        [hadolint(), "--format", "json", "--failure-threshold", "style", "--no-color", str(path)],
+        capture_output=True, text=True, timeout=60,
+    )
+    return json.loads(result.stdout or "[]")
+
+
+def test_hadolint_finds_nothing() -> None:
+    findings = run_hadolint(DOCKERFILE)
+    assert findings == [], "\n".join(f"line {f['line']}: {f['code']} {f['message']}" for f in findings)
+
+
+def test_hadolint_is_really_linting(tmp_path: Path) -> None:
+    # Rules DL3007 (":latest" tag) and DL3013 (unpinned pip install), from hadolint's rule list.
+    bad = tmp_path / "Dockerfile"
+    bad.write_text("FROM python:latest\nRUN pip install --no-cache-dir numpy\n", encoding="utf-8")
+    codes = {f["code"] for f in run_hadolint(bad)}
+    assert {"DL3007", "DL3013"} <= codes
+
+
+def test_multi_stage_build_on_a_slim_python_base() -> None:
+    all_stages = stages()
+    assert len(all_stages) >= 2
+    args = {rest.split("=", 1)[0]: rest.split("=", 1)[1] for kw, rest in instructions() if kw == "ARG" and "=" in rest}
+    for stage in all_stages:
+        base = stage[0][1].split()[0]
+        base = args.get(base.strip("${}"), base)
+        assert re.fullmatch(r"python:3\.\d+(\.\d+)?-slim(-\w+)?", base), base
+    final = all_stages[-1]
+    copies = [rest for kw, rest in final if kw == "COPY"]
+    assert any(c.startswith("--from=") for c in copies), "the runtime stage copies the built environment"
+    assert not any(kw == "RUN" and "pip install" in rest for kw, rest in final), "no installs in the runtime stage"
+
+
+def test_dependencies_come_from_the_pinned_requirements() -> None:
+    build = stages()[0]
+    runs = " ".join(rest for kw, rest in build if kw == "RUN")
+    assert "--requirement /tmp/requirements.txt" in runs or "-r /tmp/requirements.txt" in runs
+    assert "COPY deploy/requirements.txt /tmp/requirements.txt" in [f"{kw} {rest}" for kw, rest in build]
+    # The project itself must not pull in unpinned dependencies.
+    project_installs = re.findall(r"pip install ([^&;]*)", runs)
+    assert any("--no-deps" in args and args.split()[-1] == "." for args in project_installs)
+
+
+def test_runs_as_non_root_with_healthcheck_and_writable_tmp() -> None:
+    final = stages()[-1]
+    users = [rest for kw, rest in final if kw == "USER"]
+    assert users and users[-1].split(":")[0] not in {"0", "root"}
+    (healthcheck,) = [rest for kw, rest in final if kw == "HEALTHCHECK"]
+    assert "/healthz" in healthcheck and "urllib.request" in healthcheck
+    assert "curl" not in healthcheck and "wget" not in healthcheck
+    env = env_of(final)
+    assert env["TMPDIR"] == "/tmp" and env["PYTHONDONTWRITEBYTECODE"] == "1"
+
+
+def test_command_takes_host_port_and_workers_from_the_environment() -> None:
+    final = stages()[-1]
+    env = env_of(final)
+    (cmd,) = [json.loads(rest) for kw, rest in final if kw == "CMD"]
+    shell_line = cmd[-1]
+    assert shell_line.startswith("exec bandwise serve"), "exec keeps the service as PID 1 for SIGTERM"
+    for name in ("BANDWISE_HOST", "BANDWISE_PORT", "BANDWISE_WORKERS"):
+        assert f"${name}" in shell_line and name in env
+    (expose,) = [rest for kw, rest in final if kw == "EXPOSE"]
+    assert expose == env["BANDWISE_PORT"]
+    deployment = yaml.safe_load((DEPLOY / "k8s" / "deployment.yaml").read_text(encoding="utf-8"))
+    (container,) = deployment["spec"]["template"]["spec"]["containers"]
+    assert [p["containerPort"] for p in container["ports"]] == [int(expose)]
+    uid = [rest for kw, rest in final if kw == "USER"][-1].split(":")[0]
+    assert int(uid) == deployment["spec"]["template"]["spec"]["securityContext"]["runAsUser"]
+
+
+def dockerignore_keeps(path: str, patterns: list[str]) -> bool:
+    """Whether the build context keeps ``path`` (last matching pattern wins, parents count)."""
+    keep = True
+    parts = path.split("/")
+    candidates = ["/".join(parts[: i + 1]) for i in range(len(parts))]
+    for pattern in patterns:
+        negate = pattern.startswith("!")
+        body = pattern[1:] if negate else pattern
+        if any(fnmatch.fnmatchcase(c, body) or fnmatch.fnmatchcase(c, body.removeprefix("**/")) for c in candidates):
+            keep = negate
+    return keep
+
+
+@pytest.mark.parametrize("source", ["pyproject.toml", "README.md", "estimators", "service", "deploy/requirements.txt"])
+def test_build_context_keeps_what_the_build_copies(source: str) -> None:
+    copied = [item for kw, rest in instructions() if kw == "COPY" and not rest.startswith("--from") for item in rest.split()[:-1]]
+    assert source in copied
+    patterns = [
+        line.strip()
+        for line in (REPO / ".dockerignore").read_text(encoding="utf-8").splitlines()
+        if line.strip() and not line.startswith("#")
+    ]
+    assert dockerignore_keeps(source, patterns)
+    assert not dockerignore_keeps(".git", patterns) and not dockerignore_keeps("tests", patterns)
+    assert (REPO / source).exists()
