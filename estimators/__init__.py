@@ -1,0 +1,20 @@
+"""Bandwise numerics: kernel smoothing, bandwidth selection and uncertainty.
+
+Pure numpy/scipy; no web, no I/O.
+"""
+
+from .bandwidth import Selection, select_bandwidth
+from .cautions import Caution
+from .kernels import KERNELS, Kernel, convert_bandwidth
+from .local_poly import Smoother, fit
+
+__all__ = [
+    "KERNELS",
+    "Caution",
+    "Kernel",
+    "Selection",
+    "Smoother",
+    "convert_bandwidth",
+    "fit",
+    "select_bandwidth",
+]

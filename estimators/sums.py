@@ -1,0 +1,564 @@
+"""Kernel-weighted moment sums over sorted data: exact fast paths and the binned path.
+
+Every local polynomial quantity in Bandwise (fits, slopes, leverages,
+variances) is built from *windowed moment sums*
+
+.. math::  M_{c,k}(t) = \\sum_i q_{i,c}\\, K(u_i)^p\\, u_i^k, \\qquad u_i = (x_i - t) / h,
+
+for a few value columns ``q`` (weights, weights times ``y``, ...), orders
+``k`` and ``p`` in {1, 2}. This module computes them without ever forming an
+``n`` by ``m`` matrix.
+
+Compact kernels (``engine="exact"``)
+    Fast sum updating (Seifert, Brockmann, Engel & Gasser 1994; Fan & Marron
+    1994): on ``|u| <= 1`` every supported kernel is a polynomial in ``u`` or
+    ``|u|``, or a cosine, so ``K(u) u^k`` expands into powers (times a cosine)
+    of the data coordinate and the window sum becomes a difference of prefix
+    sums. The textbook version takes prefix sums of raw powers ``x^j``; with
+    epoch-millisecond ``x`` (about 1.7e12) the fourth powers carry ~1e49 and the
+    differences lose every digit. We use **tile-local centring** instead: the x
+    axis is cut into tiles slightly wider than ``h``, each point's powers are
+    taken about its own tile centre (so ``|v| <= 1/2``), and a window, which
+    meets at most three tiles, is assembled from three pieces re-centred by an
+    exact binomial (or angle-addition) shift. All terms then stay below
+    ``2**J`` times the result (``J`` the polynomial degree involved, at most 13
+    for fits), so the relative rounding error is about ``2**J * eps``,
+    independent of the location and scale of ``x``. Cost: one pass over the
+    sorted data per value column and power plus ``O(log n)`` per query point.
+
+Gaussian kernel (``engine="exact"``)
+    A fast Gauss transform (Greengard & Strain 1991) in one dimension. Sources
+    and targets are grouped into tiles of width ``h``; for a source tile at
+    offset ``D`` (in bandwidths) from a target tile, ``exp(-(D+s)^2/2)`` is
+    expanded in ``s = v - w`` (``|s| <= 1``) about ``D`` using Hermite
+    functions, giving a local polynomial of degree < ``N_TERMS`` at the target
+    tile. Truncation error per unit of mass is bounded by Cramér's inequality,
+    ``|He_n(x)| exp(-x^2/4) <= 1.0865 sqrt(n!)``, as ``1.09 / sqrt(N!)`` =
+    ``6e-17`` for ``N = 30``; tests measure the end-to-end error against the
+    dense formula. Sources farther than ``GAUSSIAN_CUTOFF = 10`` bandwidths
+    from a target tile are ignored (their relative weight is below
+    ``exp(-50) ~ 2e-22``); a point with no data within that distance is
+    undefined (NaN), like an empty window of a compact kernel.
+
+Binned path (``engine="binned"``)
+    Linear binning of the value columns onto a regular grid, discrete
+    convolution with the sampled kernel by FFT (Wand 1994; Fan & Marron 1994),
+    and cubic (Keys 1981) interpolation of the moment sums from the grid to the
+    query points. With grid spacing ``h / BINNED_POINTS_PER_BANDWIDTH`` the
+    measured error for the gaussian kernel is far below ``1e-6`` of the range
+    of ``y`` (see ``tests/test_sums.py``); compact kernels have kinks at the
+    window edges and are better served by the exact path.
+
+References
+----------
+.. [1] Seifert, B., Brockmann, M., Engel, J. and Gasser, T. (1994). Fast
+   algorithms for nonparametric curve estimation. *J. Comput. Graph. Statist.*
+   3, 192-213.
+.. [2] Fan, J. and Marron, J. S. (1994). Fast implementations of
+   nonparametric curve estimators. *J. Comput. Graph. Statist.* 3, 35-56.
+.. [3] Greengard, L. and Strain, J. (1991). The fast Gauss transform. *SIAM
+   J. Sci. Stat. Comput.* 12, 79-94.
+.. [4] Wand, M. P. (1994). Fast computation of multivariate kernel
+   estimators. *J. Comput. Graph. Statist.* 3, 433-445.
+.. [5] Keys, R. (1981). Cubic convolution interpolation for digital image
+   processing. *IEEE Trans. Acoust., Speech, Signal Process.* 29, 1153-1160.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+import numpy as np
+from scipy import signal
+from scipy.special import comb
+
+from .kernels import Kernel, Shape
+
+try:  # compiled sliding-window sums; the numpy path below is the reference and the fallback
+    from . import _compiled
+except ImportError:  # pragma: no cover - numba missing
+    _compiled = None  # type: ignore[assignment]
+
+__all__ = [
+    "GAUSSIAN_CUTOFF",
+    "BINNED_POINTS_PER_BANDWIDTH",
+    "moment_sums",
+    "window_counts",
+    "distinct_counts",
+]
+
+GAUSSIAN_CUTOFF = 10.0
+N_TERMS = 30
+BINNED_POINTS_PER_BANDWIDTH = 256
+_TILE_STRETCH = 1.0 + 2.0**-10  # tiles a hair wider than h: a window meets at most 3 tiles
+_CHUNK = 16384
+
+
+# ---------------------------------------------------------------------------
+# window bookkeeping
+# ---------------------------------------------------------------------------
+
+
+def effective_radius(kernel: Kernel) -> float:
+    """Half-width of the window in bandwidths (support, or the gaussian cutoff)."""
+    return kernel.support if math.isfinite(kernel.support) else GAUSSIAN_CUTOFF
+
+
+def window_bounds(
+    x: np.ndarray, points: np.ndarray, kernel: Kernel, bandwidth: float
+) -> tuple[np.ndarray, np.ndarray]:
+    """Index range ``[lo, hi)`` of sorted ``x`` inside each point's window.
+
+    Kernels that vanish at ``|u| = 1`` use the open window (edge points carry no
+    weight); the uniform kernel uses the closed one.
+    """
+    radius = effective_radius(kernel) * bandwidth
+    closed = not kernel.vanishes_at_edge
+    lo = np.searchsorted(x, points - radius, side="left" if closed else "right")
+    hi = np.searchsorted(x, points + radius, side="right" if closed else "left")
+    return lo, hi
+
+
+def window_counts(x: np.ndarray, points: np.ndarray, kernel: Kernel, bandwidth: float) -> np.ndarray:
+    """Number of sorted data points carrying weight in each point's window."""
+    lo, hi = window_bounds(x, points, kernel, bandwidth)
+    return np.maximum(hi - lo, 0)
+
+
+def distinct_counts(
+    x: np.ndarray, points: np.ndarray, kernel: Kernel, bandwidth: float
+) -> np.ndarray:
+    """Number of distinct ``x`` values inside each point's window."""
+    lo, hi = window_bounds(x, points, kernel, bandwidth)
+    new = np.empty(x.size, dtype=np.int64)
+    if x.size:
+        new[0] = 1
+        new[1:] = x[1:] != x[:-1]
+    prefix = np.concatenate(([0], np.cumsum(new)))
+    inside = hi > lo
+    out = np.zeros(points.shape, dtype=np.int64)
+    out[inside] = prefix[hi[inside]] - prefix[lo[inside] + 1] + 1
+    return out
+
+
+# ---------------------------------------------------------------------------
+# feature bases for the compact exact path
+# ---------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class _Basis:
+    """Functions of the tile-local coordinate whose window sums give the moments.
+
+    ``omega == 0``: powers ``v**j`` for ``j <= degree``.
+    ``omega > 0``: ``cos(omega v) v**j`` then ``sin(omega v) v**j``.
+    """
+
+    degree: int
+    omega: float = 0.0
+
+    @property
+    def size(self) -> int:
+        return (self.degree + 1) * (1 if self.omega == 0.0 else 2)
+
+    def features(self, v: np.ndarray, q: np.ndarray) -> np.ndarray:
+        out = np.empty((v.size, self.size))
+        if self.omega == 0.0:
+            col = q.copy()
+            for j in range(self.degree + 1):
+                out[:, j] = col
+                if j < self.degree:
+                    col *= v
+            return out
+        d1 = self.degree + 1
+        c = q * np.cos(self.omega * v)
+        s = q * np.sin(self.omega * v)
+        for j in range(d1):
+            out[:, j] = c
+            out[:, d1 + j] = s
+            if j < self.degree:
+                c *= v
+                s *= v
+        return out
+
+    def shift(self, delta: np.ndarray) -> np.ndarray:
+        """Matrices ``T`` with ``features(v + delta) = T @ features(v)``; shape (m, F, F)."""
+        delta = np.atleast_1d(np.asarray(delta, dtype=float))
+        d1 = self.degree + 1
+        binom = np.zeros((delta.size, d1, d1))
+        powers = np.ones((delta.size, d1))
+        for k in range(1, d1):
+            powers[:, k] = powers[:, k - 1] * delta
+        for big in range(d1):
+            for j in range(big + 1):
+                binom[:, big, j] = comb(big, j, exact=True) * powers[:, big - j]
+        if self.omega == 0.0:
+            return binom
+        cw = np.cos(self.omega * delta)[:, None, None]
+        sw = np.sin(self.omega * delta)[:, None, None]
+        out = np.empty((delta.size, 2 * d1, 2 * d1))
+        out[:, :d1, :d1] = binom * cw
+        out[:, :d1, d1:] = -binom * sw
+        out[:, d1:, :d1] = binom * sw
+        out[:, d1:, d1:] = binom * cw
+        return out
+
+
+def _blocks(shape: Shape, order: int) -> list[tuple[_Basis, np.ndarray, np.ndarray]]:
+    """Bases with linear maps from shifted features to moments ``k = 0..order``.
+
+    Returns ``(basis, right_map, left_map)``; ``*_map`` has shape
+    ``(order + 1, basis.size)`` and gives ``sum q K(u) u^k`` on the part of the
+    window with ``u >= 0`` (right) or ``u < 0`` (left).
+    """
+    blocks = []
+    if shape.poly:
+        deg_k = len(shape.poly) - 1
+        basis = _Basis(deg_k + order)
+        right = np.zeros((order + 1, basis.size))
+        left = np.zeros((order + 1, basis.size))
+        for k in range(order + 1):
+            for a, coef in enumerate(shape.poly):
+                right[k, a + k] += coef
+                left[k, a + k] += coef * ((-1.0) ** a if shape.in_abs else 1.0)
+        blocks.append((basis, right, left))
+    for amp, omega in shape.cosines:
+        basis = _Basis(order, omega)
+        m = np.zeros((order + 1, basis.size))
+        for k in range(order + 1):
+            m[k, k] = amp
+        blocks.append((basis, m, m))
+    return blocks
+
+
+# ---------------------------------------------------------------------------
+# compact kernels: tile-centred fast sum updating
+# ---------------------------------------------------------------------------
+
+
+def _compact_moments(
+    x: np.ndarray,
+    q: np.ndarray,
+    points: np.ndarray,
+    kernel: Kernel,
+    shape: Shape,
+    bandwidth: float,
+    order: int,
+) -> np.ndarray:
+    n, ncol = q.shape
+    m = points.size
+    out = np.zeros((m, ncol, order + 1))
+    if n == 0 or m == 0:
+        return out
+    h = float(bandwidth)
+    width = h * _TILE_STRETCH
+    stretch = width / h
+    origin = float(x[0])
+    rel = x - origin
+    tile = np.floor(rel / width)
+    v = (rel - (tile + 0.5) * width) / h
+
+    lo, hi = window_bounds(x, points, kernel, h)
+    empty = hi <= lo
+    last_tile = float(tile[-1])
+    b0 = np.clip(np.floor((points - origin) / width), -2.0, last_tile + 2.0)
+    delta0 = ((b0 + 0.5) * width - (points - origin)) / h
+    delta0[empty] = 0.0
+    s0 = np.searchsorted(tile, b0, side="left")
+    s1 = np.searchsorted(tile, b0 + 1.0, side="left")
+    if shape.in_abs:
+        mid = np.clip(np.searchsorted(x, points, side="left"), lo, hi)
+        halves = [("left", lo, mid), ("right", mid, hi)]
+    else:
+        halves = [("right", lo, hi)]
+
+    cuts = []
+    for side, a, b in halves:
+        p1 = np.clip(s0, a, b)
+        p2 = np.clip(s1, a, b)
+        cuts.append((side, np.stack([a, p1, p2, b])))
+
+    for basis, right_map, left_map in _blocks(shape, order):
+        t_minus = basis.shift(np.array([-stretch]))[0]
+        t_plus = basis.shift(np.array([stretch]))[0]
+        for c in range(ncol):
+            cum = np.empty((n + 1, basis.size))
+            cum[0] = 0.0
+            np.cumsum(basis.features(v, q[:, c]), axis=0, out=cum[1:])
+            for start in range(0, m, _CHUNK):
+                sl = slice(start, min(start + _CHUNK, m))
+                t_final = basis.shift(delta0[sl])
+                for side, idx in cuts:
+                    g = cum[idx[:, sl]]  # (4, chunk, F)
+                    piece_a = g[1] - g[0]
+                    piece_b = g[2] - g[1]
+                    piece_c = g[3] - g[2]
+                    local = piece_a @ t_minus.T + piece_b + piece_c @ t_plus.T
+                    shifted = np.einsum("mgf,mf->mg", t_final, local)
+                    kmap = left_map if side == "left" else right_map
+                    out[sl, c, :] += shifted @ kmap.T
+    return out
+
+
+# ---------------------------------------------------------------------------
+# gaussian kernel: fast Gauss transform on tiles of width h
+# ---------------------------------------------------------------------------
+
+
+def _hermite_functions(d: np.ndarray, count: int) -> np.ndarray:
+    """``f^(n)(d)`` for ``f(u) = exp(-u^2/2)``, ``n < count``: ``(-1)^n He_n(d) exp(-d^2/2)``."""
+    d = np.asarray(d, dtype=float)
+    out = np.empty(d.shape + (count,))
+    base = np.exp(-0.5 * d * d)
+    he_prev = np.zeros_like(d)
+    he = np.ones_like(d)
+    for k in range(count):
+        out[..., k] = ((-1.0) ** k) * he * base
+        he_prev, he = he, d * he - k * he_prev
+    return out
+
+
+def _gauss_transform(
+    x: np.ndarray, q: np.ndarray, points: np.ndarray, bandwidth: float, nderiv: int
+) -> np.ndarray:
+    """``d^k/dw^k sum_i q_i exp(-(x_i - t)^2 / 2h^2)`` in units of ``h``, ``k <= nderiv``.
+
+    Equals ``sum_i q_i He_k(u_i) exp(-u_i^2/2)`` with ``u_i = (x_i - t)/h``.
+    Returns shape ``(m, ncol, nderiv + 1)``.
+    """
+    n, ncol = q.shape
+    m = points.size
+    out = np.zeros((m, ncol, nderiv + 1))
+    if n == 0 or m == 0:
+        return out
+    h = float(bandwidth)
+    N = N_TERMS
+    origin = float(x[0])
+    src_tile = np.floor((x - origin) / h)
+    v = (x - origin) / h - (src_tile + 0.5)
+    tiles, starts = np.unique(src_tile, return_index=True)
+    fact = np.array([math.factorial(j) for j in range(2 * N)], dtype=float)
+
+    # source moments M[S, c, j] = sum q v^j / j!
+    moments = np.empty((tiles.size, ncol, N))
+    for c in range(ncol):
+        col = q[:, c].astype(float, copy=True)
+        for j in range(N):
+            moments[:, c, j] = np.add.reduceat(col, starts) / fact[j]
+            col *= v
+
+    tgt_tile_all = np.floor((points - origin) / h)
+    w_all = (points - origin) / h - (tgt_tile_all + 0.5)
+    ttiles, inverse = np.unique(tgt_tile_all, return_inverse=True)
+    reach = int(math.ceil(GAUSSIAN_CUTOFF)) + 1
+    local = np.zeros((ttiles.size, ncol, N))
+    # L_k = sum_j A[k, j] M_j with A[k, j] = (-1)^k f^(j+k)(D) / k!, truncated to j + k < N
+    jk = np.add.outer(np.arange(N), np.arange(N))
+    mask = jk < N
+    sign_k = (-1.0) ** np.arange(N)
+    for off in range(-reach, reach + 1):
+        want = ttiles + off
+        pos = np.searchsorted(tiles, want)
+        pos_c = np.minimum(pos, tiles.size - 1)
+        hit = tiles[pos_c] == want
+        if not hit.any():
+            continue
+        hf = _hermite_functions(np.array(float(off)), 2 * N)
+        amat = hf[jk] * (sign_k / fact[:N])[:, None]  # [k, j]; M already holds 1/j!
+        amat = np.where(mask, amat, 0.0)
+        src = moments[pos_c[hit]]  # (hits, ncol, N_j)
+        local[hit] += np.einsum("kj,scj->sck", amat, src)
+
+    # derivative k of sum_n L_n w^n is sum_n L_n n!/(n-k)! w^(n-k)
+    for start in range(0, m, _CHUNK):
+        sl = slice(start, min(start + _CHUNK, m))
+        w = w_all[sl]
+        coeffs = local[inverse[sl]]  # (chunk, ncol, N)
+        wp = np.ones((w.size, N))
+        for j in range(1, N):
+            wp[:, j] = wp[:, j - 1] * w
+        for k in range(nderiv + 1):
+            scale = fact[k:N] / fact[: N - k]
+            out[sl, :, k] = np.einsum("mcn,mn->mc", coeffs[:, :, k:] * scale, wp[:, : N - k])
+    return out
+
+
+def _hermite_to_power(order: int) -> np.ndarray:
+    """Matrix ``P`` with ``u^k = sum_j P[k, j] He_j(u)`` for ``k <= order``."""
+    p = np.zeros((order + 1, order + 1))
+    # u^k = sum_i k! / (i! (k-2i)! 2^i) He_{k-2i}(u)
+    for k in range(order + 1):
+        for i in range(k // 2 + 1):
+            p[k, k - 2 * i] = math.factorial(k) / (math.factorial(i) * math.factorial(k - 2 * i) * 2**i)
+    return p
+
+
+def _gaussian_moments(
+    x: np.ndarray, q: np.ndarray, points: np.ndarray, bandwidth: float, order: int, power: int
+) -> np.ndarray:
+    # K(u)^2 = exp(-u^2) / (2 pi) = f(sqrt2 u) / (2 pi): a gaussian at h / sqrt 2
+    h_eff = bandwidth / math.sqrt(power)
+    norm = (2.0 * math.pi) ** (-0.5 * power)
+    raw = _gauss_transform(x, q, points, h_eff, order)  # sum q He_k(u') f(u')
+    powers = raw @ _hermite_to_power(order).T  # sum q u'^k f(u')
+    scale = norm * (1.0 / math.sqrt(power)) ** np.arange(order + 1)  # u = u' / sqrt(power)
+    return powers * scale
+
+
+# ---------------------------------------------------------------------------
+# binned path
+# ---------------------------------------------------------------------------
+
+
+def _keys_weights(frac: np.ndarray) -> np.ndarray:
+    """Keys (1981) cubic convolution weights (a = -1/2) for offsets -1, 0, 1, 2."""
+    t = frac
+    w = np.empty(t.shape + (4,))
+    w[..., 0] = ((-0.5 * t + 1.0) * t - 0.5) * t
+    w[..., 1] = (1.5 * t - 2.5) * t * t + 1.0
+    w[..., 2] = ((-1.5 * t + 2.0) * t + 0.5) * t
+    w[..., 3] = (0.5 * t - 0.5) * t * t
+    return w
+
+
+def binned_grid_size(x_min: float, x_max: float, kernel: Kernel, bandwidth: float) -> int:
+    """Number of grid points the binned path would use for this problem."""
+    span = (x_max - x_min) + 2.0 * effective_radius(kernel) * bandwidth
+    return int(math.ceil(span / bandwidth * BINNED_POINTS_PER_BANDWIDTH)) + 4
+
+
+def _binned_moments(
+    x: np.ndarray,
+    q: np.ndarray,
+    points: np.ndarray,
+    kernel: Kernel,
+    bandwidth: float,
+    order: int,
+    power: int,
+) -> np.ndarray:
+    n, ncol = q.shape
+    m = points.size
+    out = np.zeros((m, ncol, order + 1))
+    if n == 0 or m == 0:
+        return out
+    h = float(bandwidth)
+    radius = effective_radius(kernel)
+    step = h / BINNED_POINTS_PER_BANDWIDTH
+    start = float(x[0]) - radius * h - 2 * step
+    size = binned_grid_size(float(x[0]), float(x[-1]), kernel, h)
+    pos = (x - start) / step
+    j = np.clip(np.floor(pos).astype(np.int64), 0, size - 2)
+    frac = pos - j
+    reach = int(math.ceil(radius * BINNED_POINTS_PER_BANDWIDTH))
+    lags = np.arange(-reach, reach + 1) * (step / h)
+    kvals = kernel(lags) ** power
+    for c in range(ncol):
+        counts = np.bincount(j, weights=q[:, c] * (1.0 - frac), minlength=size)
+        counts += np.bincount(j + 1, weights=q[:, c] * frac, minlength=size)
+        grid = np.empty((size, order + 1))
+        for k in range(order + 1):
+            # sum_j c_j K(u) u^k with u = (g_j - g_l) h^-1: a correlation; K u^k has parity k
+            filt = kvals * lags**k
+            conv = signal.oaconvolve(counts, filt[::-1], mode="full")
+            grid[:, k] = conv[reach : reach + size]
+        gpos = (points - start) / step
+        inside = (gpos >= 1.0) & (gpos <= size - 3.0)
+        gi = np.floor(np.where(inside, gpos, 1.0)).astype(np.int64)
+        wts = _keys_weights(np.where(inside, gpos, 1.0) - gi)
+        vals = np.zeros((m, order + 1))
+        for off in range(4):
+            vals += wts[:, off, None] * grid[gi + off - 1]
+        vals[~inside] = 0.0
+        out[:, c, :] = vals
+    return out
+
+
+# ---------------------------------------------------------------------------
+# public entry point
+# ---------------------------------------------------------------------------
+
+
+def _is_sorted(a: np.ndarray) -> bool:
+    return bool(a.size < 2 or np.all(a[1:] >= a[:-1]))
+
+
+def moment_sums_sorted(
+    x: np.ndarray,
+    q: np.ndarray,
+    points: np.ndarray,
+    kernel: Kernel,
+    bandwidth: float,
+    order: int,
+    *,
+    power: int = 1,
+    engine: str = "exact",
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """:func:`moment_sums` for ascending ``points``; also returns the window bounds ``lo, hi``."""
+    if engine == "binned":
+        mom = _binned_moments(x, q, points, kernel, bandwidth, order, power)
+    elif engine != "exact":
+        raise ValueError(f"unknown engine {engine!r}")
+    elif kernel.shape is None:
+        mom = _gaussian_moments(x, q, points, bandwidth, order, power)
+    else:
+        shape = kernel.shape if power == 1 else kernel.shape.squared()
+        if _compiled is not None and not shape.cosines and x.size:
+            mom = np.empty((points.size, q.shape[1], order + 1))
+            lo = np.empty(points.size, dtype=np.int64)
+            hi = np.empty(points.size, dtype=np.int64)
+            _compiled.poly_window_moments(
+                x, np.ascontiguousarray(q), points, float(bandwidth), np.asarray(shape.poly, dtype=float),
+                bool(shape.in_abs), int(order), not kernel.vanishes_at_edge, mom, lo, hi,
+            )
+            return mom, lo, hi
+        mom = _compact_moments(x, q, points, kernel, shape, bandwidth, order)
+    lo, hi = window_bounds(x, points, kernel, bandwidth)
+    return mom, lo, hi
+
+
+def moment_sums(
+    x: np.ndarray,
+    values: np.ndarray,
+    points: np.ndarray,
+    kernel: Kernel,
+    bandwidth: float,
+    order: int,
+    *,
+    power: int = 1,
+    engine: str = "exact",
+) -> np.ndarray:
+    """Windowed kernel moment sums ``sum_i q_ic K(u_i)^power u_i^k``.
+
+    Parameters
+    ----------
+    x : ndarray, shape (n,)
+        Sorted data locations (ascending).
+    values : ndarray, shape (n, ncol)
+        Value columns ``q``, e.g. weights and weights times ``y``.
+    points : ndarray, shape (m,)
+        Evaluation points, any order (sorted internally once).
+    kernel : Kernel
+    bandwidth : float
+    order : int
+        Highest power ``k`` of ``u``.
+    power : {1, 2}
+        Power of the kernel (2 for variances).
+    engine : {"exact", "binned"}
+
+    Returns
+    -------
+    ndarray, shape (m, ncol, order + 1)
+        Zero where the window holds no data.
+    """
+    x = np.asarray(x, dtype=float)
+    q = np.asarray(values, dtype=float)
+    if q.ndim == 1:
+        q = q[:, None]
+    pts = np.asarray(points, dtype=float).ravel()
+    if _is_sorted(pts):
+        return moment_sums_sorted(x, q, pts, kernel, bandwidth, order, power=power, engine=engine)[0]
+    perm = np.argsort(pts)
+    mom = moment_sums_sorted(x, q, pts[perm], kernel, bandwidth, order, power=power, engine=engine)[0]
+    out = np.empty_like(mom)
+    out[perm] = mom
+    return out
