@@ -1,0 +1,143 @@
+"""The running service: settings, worker pool, metrics and the path from request to worker."""
+
+from __future__ import annotations
+
+import logging
+import time
+
+from starlette.requests import Request
+from starlette.responses import Response
+
+from .auth import KeyChecker
+from .errors import PROBLEM_MEDIA_TYPE, ProblemError
+from .jobs import Job, Outcome
+from .limits import RateLimiter, check_json_content_type, read_body, retry_after
+from .metrics import Metrics
+from .observability import ServiceCounters, request_id_of
+from .pool import DeadlineExceeded, Overloaded, PoolClosed, WorkerLost, WorkerPool
+from .settings import Settings
+
+log = logging.getLogger("bandwise.service")
+
+CACHEABLE = ("kernels", "demo_list", "demo")
+
+
+class Service:
+    """Everything one app instance owns.
+
+    Parameters
+    ----------
+    settings : Settings
+        Limits, pool size, security options.
+    """
+
+    def __init__(self, settings: Settings) -> None:
+        self.settings = settings
+        self.metrics = Metrics()
+        self.counters = ServiceCounters()
+        self.keys = KeyChecker(settings.api_keys)
+        self.limiter = RateLimiter(settings.rate_limit_per_minute, settings.rate_limit_burst)
+        self.pool = WorkerPool(
+            settings.workers,
+            settings.effective_queue_size,
+            {
+                "limits": settings.limits(),
+                "gzip_min_bytes": settings.gzip_min_bytes,
+                "gzip_level": settings.gzip_level,
+                "log_level": settings.log_level,
+            },
+            on_event=self.metrics.on_pool_event,
+        )
+        self.metrics.bind_pool(lambda: self.pool.busy, lambda: self.pool.waiting, lambda: self.pool.ready_count)
+        self.draining = False
+        self.drain_started: float | None = None
+        self._cache: dict[str, Outcome] = {}
+
+    async def start(self) -> None:
+        await self.pool.start()
+
+    async def stop(self) -> None:
+        await self.pool.close()
+
+    def begin_drain(self) -> None:
+        """Turn /readyz to 503 and refuse new work; in-flight requests go on."""
+        if not self.draining:
+            self.draining = True
+            self.drain_started = time.monotonic()
+            log.info("draining", extra={"fields": {"in_flight": self.counters.active_api, "drain_seconds": self.settings.drain_seconds}})
+
+    @property
+    def ready(self) -> bool:
+        return not self.draining and not self.pool.closed and self.pool.ready_count > 0
+
+    # -------------------------------------------------------------- guards
+
+    def guard(self, request: Request) -> None:
+        """API key and per-client rate limit (router dependency for /v1)."""
+        self.keys.check(request)
+        if self.limiter.enabled:
+            client = self.keys.client_of(request) or (request.client.host if request.client else "unknown")
+            wait = self.limiter.acquire(client)
+            if wait > 0:
+                self.metrics.shed.labels("rate_limited").inc()
+                raise ProblemError("rate-limited", f"More than {self.settings.rate_limit_per_minute} requests per minute from this client.", headers=retry_after(wait))
+
+    # -------------------------------------------------------------- work
+
+    async def submit(self, request: Request, kind: str, *, params: dict[str, str] | None = None, with_body: bool = True) -> Response:
+        """Hand one request to a worker and turn its outcome into a response."""
+        if self.draining:
+            self.metrics.shed.labels("draining").inc()
+            headers = retry_after(self.settings.retry_after_seconds)
+            headers["Connection"] = "close"
+            raise ProblemError("shutting-down", "This process is shutting down; retry on another replica.", headers=headers)
+        cache_key = None
+        if kind in CACHEABLE:
+            cache_key = kind + ":" + ",".join(f"{k}={v}" for k, v in sorted((params or {}).items()))
+            cached = self._cache.get(cache_key)
+            if cached is not None:
+                return self._response(request, cached)
+        body = b""
+        if with_body:
+            check_json_content_type(request)
+            body = await read_body(request, self.settings.max_body_bytes)
+        accept_gzip = cache_key is None and "gzip" in request.headers.get("accept-encoding", "").lower()
+        job = Job(kind, body, request_id_of(request.scope), request.url.path, dict(params or {}), accept_gzip)
+        try:
+            outcome = await self.pool.run(job, self.settings.deadline_seconds)
+        except Overloaded:
+            self.metrics.shed.labels("queue_full").inc()
+            raise ProblemError(
+                "overloaded",
+                f"All {self.pool.size} workers are busy and {self.pool.queue_size} requests are already waiting.",
+                headers=retry_after(self.settings.retry_after_seconds),
+            ) from None
+        except DeadlineExceeded:
+            self.metrics.shed.labels("deadline").inc()
+            raise ProblemError(
+                "deadline-exceeded",
+                f"The request did not finish within {self.settings.deadline_seconds:g} s and was stopped.",
+                headers=retry_after(self.settings.retry_after_seconds),
+            ) from None
+        except PoolClosed:
+            raise ProblemError("shutting-down", "This process is shutting down; retry on another replica.", headers=retry_after(self.settings.retry_after_seconds)) from None
+        except WorkerLost as exc:
+            log.error("worker lost during a job", extra={"fields": {"request_id": job.request_id, "kind": kind, "error": str(exc)}})
+            raise ProblemError("internal-error", "The worker computing this request stopped unexpectedly. It has been logged; quote the request id when reporting it.") from None
+        if cache_key is not None and outcome.status == 200:
+            self._cache[cache_key] = outcome
+        return self._response(request, outcome)
+
+    def _response(self, request: Request, outcome: Outcome) -> Response:
+        state = request.state
+        state.points = outcome.points
+        if outcome.problem:
+            state.problem = outcome.problem
+        if outcome.status == 200 and outcome.points:
+            self.metrics.points.inc(outcome.points)
+        headers: dict[str, str] = {}
+        if outcome.encoding:
+            headers["Content-Encoding"] = outcome.encoding
+            headers["Vary"] = "Accept-Encoding"
+        media = PROBLEM_MEDIA_TYPE if outcome.status >= 400 else outcome.media_type
+        return Response(outcome.body, status_code=outcome.status, media_type=media, headers=headers)

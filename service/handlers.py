@@ -1,0 +1,439 @@
+"""Job handlers: parse and validate a body, call ``estimators``, shape the answer.
+
+These functions run inside the worker processes (never on the event loop).
+They do no numerics of their own: every number comes from ``estimators``;
+this module only converts arrays, counts flagged points for the cautions and
+arranges the JSON of the contract.
+"""
+
+from __future__ import annotations
+
+import gzip
+import logging
+import time
+import traceback
+from collections.abc import Callable, Iterable
+from typing import Any
+
+import numpy as np
+import orjson
+from pydantic import ValidationError
+
+import estimators
+from estimators import KERNELS, fit, select_bandwidth
+from estimators.demo import DEMOS
+
+from .errors import PROBLEM_MEDIA_TYPE, ProblemError, field_errors, problem_bytes, problem_document
+from .jobs import Job, Outcome
+from .models import BandsSpec, BandwidthRequest, BatchEnvelope, SmoothRequest
+
+log = logging.getLogger("bandwise.worker")
+
+_DUMP_OPTIONS = orjson.OPT_SERIALIZE_NUMPY
+
+
+class JobContext:
+    """Limits and response options fixed for the life of a worker."""
+
+    def __init__(self, limits: dict[str, int], gzip_min_bytes: int, gzip_level: int) -> None:
+        self.limits = limits
+        self.validation_context = {"limits": limits}
+        self.gzip_min_bytes = gzip_min_bytes
+        self.gzip_level = gzip_level
+
+
+# ----------------------------------------------------------------- helpers
+
+
+def _array(values: Iterable[float] | None) -> np.ndarray | None:
+    if values is None:
+        return None
+    return np.asarray(values, dtype=float)
+
+
+def _cautions(items: Iterable[Any]) -> list[dict[str, str]]:
+    """Warnings as dicts, each (code, message) once, in first-seen order."""
+    seen: set[tuple[str, str]] = set()
+    out: list[dict[str, str]] = []
+    for item in items:
+        key = (str(item.code), str(item.message))
+        if key not in seen:
+            seen.add(key)
+            out.append({"code": key[0], "message": key[1]})
+    return out
+
+
+class _Caution:
+    def __init__(self, code: str, message: str) -> None:
+        self.code = code
+        self.message = message
+
+
+def _plural(count: int, word: str) -> str:
+    return f"{count} {word}" if count == 1 else f"{count} {word}s"
+
+
+def _float_or_none(value: float) -> float | None:
+    value = float(value)
+    return value if np.isfinite(value) else None
+
+
+def _bandwidth_object(value: float, selection: Any) -> dict[str, Any]:
+    if selection is None:
+        return {"value": float(value), "selector": None, "rule": None, "candidates": None, "scores": None, "gaussian_equivalent": None}
+    return {
+        "value": float(value),
+        "selector": selection.selector,
+        "rule": selection.rule,
+        "candidates": np.ascontiguousarray(selection.candidates, dtype=float),
+        "scores": np.ascontiguousarray(selection.scores, dtype=float),
+        "gaussian_equivalent": _float_or_none(selection.gaussian_equivalent),
+    }
+
+
+def _validation_problem(error: ValidationError, detail: str) -> ProblemError:
+    raw = error.errors(include_url=False, include_input=False)
+    if any(e.get("type") == "json_invalid" for e in raw):
+        message = next(str(e.get("msg")) for e in raw if e.get("type") == "json_invalid")
+        return ProblemError("malformed-request", message)
+    return ProblemError("validation-error", detail, errors=field_errors(raw))
+
+
+# ----------------------------------------------------------------- smoothing
+
+
+def smooth_series(req: SmoothRequest, limits: dict[str, int]) -> dict[str, Any]:
+    """Answer one validated smooth request (the ``/v1/smooth`` response body).
+
+    Raises
+    ------
+    ProblemError
+        ``unsuitable-data`` when ``estimators`` rejects the data.
+    """
+    x = _array(req.x)
+    y = _array(req.y)
+    weights = _array(req.weights)
+    try:
+        with np.errstate(all="ignore"):
+            return _smooth_arrays(req, x, y, weights, limits)
+    except ValueError as exc:
+        raise ProblemError("unsuitable-data", str(exc)) from None
+
+
+def _smooth_arrays(req: SmoothRequest, x: Any, y: Any, weights: Any, limits: dict[str, int]) -> dict[str, Any]:
+    s = fit(
+        x,
+        y,
+        kernel=req.kernel,
+        degree=req.degree,
+        bandwidth=req.bandwidth,
+        weights=weights,
+        selector=req.selector,
+        rule=req.rule,
+        engine=req.engine,
+        candidates=req.candidates,
+        bandwidth_min=req.bandwidth_min,
+        bandwidth_max=req.bandwidth_max,
+    )
+    cautions: list[Any] = list(s.warnings)
+
+    curve_spec = req.curve
+    if curve_spec is not None and curve_spec.at is not None:
+        cx = np.asarray(curve_spec.at, dtype=float)
+    else:
+        count = curve_spec.points if curve_spec is not None and curve_spec.points is not None else limits.get("default_curve_points", 200)
+        cx = np.linspace(s.x_min, s.x_max, int(count))
+    px = _array(req.predict_at)
+    bands: BandsSpec | None = req.bands
+
+    estimate = np.ascontiguousarray(s.predict(cx), dtype=float)
+    curve: dict[str, Any] = {"x": cx, "estimate": estimate}
+    p_est = np.asarray(s.predict(px), dtype=float) if px is not None else None
+
+    p_lower = p_upper = p_ilow = p_ihigh = None
+    band_info = None
+    if bands is not None:
+        kwargs = {"level": bands.level, "method": bands.method, "replicates": bands.replicates, "seed": bands.seed, "simultaneous": bands.simultaneous}
+        if px is not None and not bands.simultaneous:
+            # Pointwise bands at curve and prediction points from one set of replicates.
+            both = s.bands(np.concatenate([cx, px]), **kwargs)
+            m = cx.size
+            curve["lower"], curve["upper"], curve["se"] = (np.ascontiguousarray(a[:m], dtype=float) for a in (both.lower, both.upper, both.se))
+            p_lower, p_upper = np.asarray(both.lower[m:]), np.asarray(both.upper[m:])
+        else:
+            b = s.bands(cx, **kwargs)
+            curve["lower"], curve["upper"], curve["se"] = (np.ascontiguousarray(a, dtype=float) for a in (b.lower, b.upper, b.se))
+            if px is not None:
+                pb = s.bands(px, **kwargs)
+                p_lower, p_upper = np.asarray(pb.lower), np.asarray(pb.upper)
+        if px is not None:
+            p_ilow, p_ihigh = (np.asarray(a, dtype=float) for a in s.prediction_interval(px, level=bands.level))
+        bootstrap = bands.method != "analytic"
+        band_info = {
+            "method": bands.method,
+            "level": bands.level,
+            "simultaneous": bands.simultaneous,
+            "replicates": bands.replicates if bootstrap else None,
+            "seed": bands.seed if bootstrap else None,
+        }
+        if not bands.simultaneous:
+            cautions.append(
+                _Caution(
+                    "pointwise_bands",
+                    f"The {bands.level:g} bands are pointwise: each covers the curve at one x on its own, "
+                    "not the whole curve at once. Ask for simultaneous bands to cover the whole curve.",
+                )
+            )
+
+    predictions: list[dict[str, Any]] = []
+    if px is not None:
+        extrapolated = np.asarray(s.extrapolated(px), dtype=bool)
+        columns: list[tuple[str, list[Any]]] = [("x", px.tolist()), ("estimate", _nullable(p_est))]
+        if p_lower is not None:
+            columns += [("lower", _nullable(p_lower)), ("upper", _nullable(p_upper))]
+        if p_ilow is not None:
+            columns += [("interval_lower", _nullable(p_ilow)), ("interval_upper", _nullable(p_ihigh))]
+        columns.append(("extrapolated", extrapolated.tolist()))
+        names = [name for name, _ in columns]
+        predictions = [dict(zip(names, row)) for row in zip(*(values for _, values in columns))]
+        cautions.extend(_point_cautions("prediction point", px, p_est, extrapolated, s))
+
+    if curve_spec is not None and curve_spec.at is not None:
+        cautions.extend(_point_cautions("curve point", cx, estimate, np.asarray(s.extrapolated(cx), dtype=bool), s))
+    else:
+        cautions.extend(_point_cautions("curve point", cx, estimate, None, s))
+
+    body: dict[str, Any] = {
+        "bandwidth": _bandwidth_object(s.bandwidth, s.selection),
+        "curve": curve,
+    }
+    if req.include_fitted:
+        body["fitted"] = {
+            "estimate": np.ascontiguousarray(s.fitted(), dtype=float),
+            "residuals": np.ascontiguousarray(s.residuals(), dtype=float),
+        }
+    body["predictions"] = predictions
+    body["diagnostics"] = {
+        "n": int(s.n),
+        "n_used": int(s.n_used),
+        "effective_df": _float_or_none(s.effective_df),
+        "residual_scale": _float_or_none(s.residual_scale),
+        "kernel": s.kernel,
+        "degree": int(s.degree),
+        "engine": s.engine,
+        "x_min": float(s.x_min),
+        "x_max": float(s.x_max),
+        "bands": band_info,
+    }
+    body["warnings"] = _cautions(cautions)
+    return body
+
+
+def _nullable(values: np.ndarray) -> list[float | None]:
+    """Floats with NaN/inf replaced by None (JSON null)."""
+    values = np.asarray(values, dtype=float)
+    out = values.tolist()
+    bad = np.flatnonzero(~np.isfinite(values))
+    for i in bad.tolist():
+        out[i] = None
+    return out
+
+
+def _point_cautions(what: str, points: np.ndarray, estimate: np.ndarray, extrapolated: np.ndarray | None, s: Any) -> list[_Caution]:
+    out: list[_Caution] = []
+    if extrapolated is not None:
+        count = int(np.count_nonzero(extrapolated))
+        if count:
+            out.append(
+                _Caution(
+                    "extrapolation",
+                    f"{_plural(count, what)} lie outside the data range [{s.x_min:g}, {s.x_max:g}]: "
+                    "there the estimate extends the local fit beyond the data and can be far off.",
+                )
+            )
+    empty = int(np.count_nonzero(~np.isfinite(estimate)))
+    if empty:
+        out.append(
+            _Caution(
+                "empty_window",
+                f"{_plural(empty, what)} have no data inside the kernel window, so the estimate there is null; "
+                "use a larger bandwidth or a kernel with unbounded support (gaussian).",
+            )
+        )
+    return out
+
+
+def select_only(req: BandwidthRequest) -> dict[str, Any]:
+    """Answer one validated bandwidth request."""
+    try:
+        with np.errstate(all="ignore"):
+            sel = select_bandwidth(
+                _array(req.x),
+                _array(req.y),
+                kernel=req.kernel,
+                degree=req.degree,
+                selector=req.selector,
+                rule=req.rule,
+                weights=_array(req.weights),
+                candidates=req.candidates,
+                bandwidth_min=req.bandwidth_min,
+                bandwidth_max=req.bandwidth_max,
+            )
+    except ValueError as exc:
+        raise ProblemError("unsuitable-data", str(exc)) from None
+    return {"bandwidth": _bandwidth_object(sel.chosen, sel), "warnings": _cautions(sel.warnings)}
+
+
+# ----------------------------------------------------------------- job kinds
+
+
+def _smooth_job(job: Job, ctx: JobContext) -> tuple[Any, int]:
+    try:
+        req = SmoothRequest.model_validate_json(job.body, context=ctx.validation_context)
+    except ValidationError as exc:
+        raise _validation_problem(exc, "The smooth request has invalid fields; see errors.") from None
+    return smooth_series(req, ctx.limits), len(req.x)
+
+
+def _bandwidth_job(job: Job, ctx: JobContext) -> tuple[Any, int]:
+    try:
+        req = BandwidthRequest.model_validate_json(job.body, context=ctx.validation_context)
+    except ValidationError as exc:
+        raise _validation_problem(exc, "The bandwidth request has invalid fields; see errors.") from None
+    return select_only(req), len(req.x)
+
+
+def _batch_job(job: Job, ctx: JobContext) -> tuple[Any, int]:
+    try:
+        envelope = BatchEnvelope.model_validate_json(job.body)
+    except ValidationError as exc:
+        raise _validation_problem(exc, "The batch request has invalid fields; see errors.") from None
+    limits = ctx.limits
+    count = len(envelope.series)
+    if count > limits.get("max_batch_series", count):
+        raise ProblemError(
+            "validation-error",
+            "Too many series in one batch.",
+            errors=[{"field": "series", "message": f"at most {limits['max_batch_series']} series are allowed, got {count}", "type": "too_long"}],
+        )
+    total = sum(len(item["x"]) for item in envelope.series if isinstance(item.get("x"), list))
+    if total > limits.get("max_batch_points", total):
+        raise ProblemError(
+            "validation-error",
+            "Too many points in one batch.",
+            errors=[{"field": "series", "message": f"at most {limits['max_batch_points']} points over all series are allowed, got {total}", "type": "too_long"}],
+        )
+    results: list[Any] = []
+    points = 0
+    for index, item in enumerate(envelope.series):
+        instance = f"{job.path}#series[{index}]"
+        try:
+            req = SmoothRequest.model_validate(item, context=ctx.validation_context)
+        except ValidationError as exc:
+            problem = _validation_problem(exc, f"Series {index} has invalid fields; see errors.")
+            results.append({"problem": problem_document(problem.slug, problem.detail, instance=instance, errors=problem.errors)})
+            continue
+        try:
+            results.append(smooth_series(req, limits))
+            points += len(req.x)
+        except ProblemError as problem:
+            results.append({"problem": problem_document(problem.slug, problem.detail, instance=instance)})
+    return {"results": results}, points
+
+
+def _kernels_job(job: Job, ctx: JobContext) -> tuple[Any, int]:
+    kernels = []
+    for name, k in KERNELS.items():
+        support = float(k.support)
+        kernels.append(
+            {
+                "name": name,
+                "support": support if np.isfinite(support) else None,
+                "roughness": float(k.roughness),
+                "second_moment": float(k.second_moment),
+                "efficiency": float(k.efficiency),
+                "canonical_factor": float(k.canonical_factor),
+            }
+        )
+    return {"kernels": kernels}, 0
+
+
+def _demo_summary(series: Any) -> dict[str, Any]:
+    return {
+        "name": series.name,
+        "title": series.title,
+        "description": series.description,
+        "n": int(len(series.x)),
+        "x_label": series.x_label,
+        "y_label": series.y_label,
+        "x_unit": series.x_unit,
+        "y_unit": series.y_unit,
+    }
+
+
+def _demo_list_job(job: Job, ctx: JobContext) -> tuple[Any, int]:
+    return {"demos": [_demo_summary(make()) for make in DEMOS.values()]}, 0
+
+
+def _demo_job(job: Job, ctx: JobContext) -> tuple[Any, int]:
+    name = str(job.params.get("name", ""))
+    if name not in DEMOS:
+        raise ProblemError("not-found", f"No demo named {name!r}; GET /v1/demo lists them ({', '.join(DEMOS)}).")
+    series = DEMOS[name]()
+    body = _demo_summary(series)
+    body["x"] = np.ascontiguousarray(series.x, dtype=float)
+    body["y"] = np.ascontiguousarray(series.y, dtype=float)
+    return body, 0
+
+
+def _ping_job(job: Job, ctx: JobContext) -> tuple[Any, int]:
+    return {"status": "ok", "estimators": estimators.__name__}, 0
+
+
+HANDLERS: dict[str, Callable[[Job, JobContext], tuple[Any, int]]] = {
+    "smooth": _smooth_job,
+    "batch": _batch_job,
+    "bandwidth": _bandwidth_job,
+    "kernels": _kernels_job,
+    "demo_list": _demo_list_job,
+    "demo": _demo_job,
+    "ping": _ping_job,
+}
+
+
+def _encode(body: bytes, job: Job, ctx: JobContext) -> tuple[bytes, str | None]:
+    if job.accept_gzip and len(body) >= ctx.gzip_min_bytes:
+        return gzip.compress(body, compresslevel=ctx.gzip_level, mtime=0), "gzip"
+    return body, None
+
+
+def run_job(job: Job, ctx: JobContext) -> Outcome:
+    """Run one job and return its answer; never raises.
+
+    A :class:`ProblemError` becomes a problem document with its status.  Any
+    other exception is logged with its traceback and the request id, and
+    answered with a 500 problem that carries the request id but no trace.
+    """
+    started = time.perf_counter()
+    handler = HANDLERS.get(job.kind)
+    try:
+        if handler is None:
+            raise RuntimeError(f"unknown job kind {job.kind!r}")
+        result, points = handler(job, ctx)
+        payload, encoding = _encode(orjson.dumps(result, option=_DUMP_OPTIONS), job, ctx)
+        return Outcome(200, payload, "application/json", encoding, points, None, time.perf_counter() - started)
+    except ProblemError as problem:
+        body = problem_bytes(problem.slug, problem.detail, instance=job.path, request_id=job.request_id, errors=problem.errors)
+        return Outcome(problem.status, body, PROBLEM_MEDIA_TYPE, None, 0, problem.slug, time.perf_counter() - started)
+    except Exception as exc:  # noqa: BLE001 - the boundary: log it, answer 500
+        log.error(
+            "unexpected error in job",
+            extra={"fields": {"request_id": job.request_id, "kind": job.kind, "error": repr(exc), "traceback": traceback.format_exc()}},
+        )
+        body = problem_bytes(
+            "internal-error",
+            "An unexpected error occurred while computing the answer. It has been logged; quote the request id when reporting it.",
+            instance=job.path,
+            request_id=job.request_id,
+        )
+        return Outcome(500, body, PROBLEM_MEDIA_TYPE, None, 0, "internal-error", time.perf_counter() - started)

@@ -1,0 +1,70 @@
+"""Messages between the HTTP process and the worker processes.
+
+Kept free of numpy and web imports: both sides import it.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any
+
+JOB_KINDS = ("smooth", "batch", "bandwidth", "kernels", "demo_list", "demo", "ping")
+
+
+@dataclass(frozen=True)
+class Job:
+    """One unit of numerical work.
+
+    Attributes
+    ----------
+    kind : str
+        One of :data:`JOB_KINDS`.
+    body : bytes
+        Raw request body (JSON), parsed and validated in the worker.
+    request_id : str
+        For log lines and problem documents.
+    path : str
+        Request path, used as the problem ``instance``.
+    params : dict
+        Path parameters (e.g. the demo name).
+    accept_gzip : bool
+        Whether the client accepts a gzip-encoded answer.
+    """
+
+    kind: str
+    body: bytes = b""
+    request_id: str = ""
+    path: str = ""
+    params: dict[str, Any] = field(default_factory=dict)
+    accept_gzip: bool = False
+
+
+@dataclass(frozen=True)
+class Outcome:
+    """The finished answer for one job.
+
+    Attributes
+    ----------
+    status : int
+        HTTP status.
+    body : bytes
+        Serialised body (possibly gzip-compressed, see ``encoding``).
+    media_type : str
+        ``application/json`` or ``application/problem+json``.
+    encoding : str or None
+        ``"gzip"`` when ``body`` is compressed.
+    points : int
+        Data points processed (for logs and metrics).
+    problem : str or None
+        Problem slug when the answer is an error.
+    seconds : float
+        Time the worker spent on the job.
+    """
+
+    status: int
+    body: bytes
+    media_type: str = "application/json"
+    encoding: str | None = None
+    points: int = 0
+    problem: str | None = None
+    seconds: float = 0.0

@@ -1,0 +1,356 @@
+"""Wire contract: pydantic models of every request and response body.
+
+Requests are strict: unknown fields are errors (``extra="forbid"``), numbers
+must be finite JSON numbers (``NaN``/``Infinity`` tokens and literals that
+overflow a double are rejected), strings are never coerced to numbers.
+Size limits come from the settings and are passed in as the validation
+context ``{"limits": {...}}`` (see :meth:`service.settings.Settings.limits`).
+
+Response models document the answers in the OpenAPI schema; the handlers
+build plain dicts of the same shape for speed, and the tests check the two
+agree.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Annotated, Any, Literal, Union
+
+from pydantic import (
+    BaseModel,
+    ConfigDict,
+    Field,
+    PlainValidator,
+    ValidationInfo,
+    WithJsonSchema,
+    model_validator,
+)
+
+KERNEL_NAMES = ("gaussian", "epanechnikov", "uniform", "triangular", "biweight", "triweight", "tricube", "cosine")
+SELECTOR_NAMES = ("loocv", "gcv", "aicc", "plugin", "rule_of_thumb")
+
+KernelName = Literal["gaussian", "epanechnikov", "uniform", "triangular", "biweight", "triweight", "tricube", "cosine"]
+SelectorName = Literal["loocv", "gcv", "aicc", "plugin", "rule_of_thumb"]
+RuleName = Literal["min", "one_se"]
+BandMethod = Literal["wild_bootstrap", "residual_bootstrap", "analytic"]
+EngineName = Literal["auto", "exact", "binned"]
+
+Finite = Annotated[float, Field(allow_inf_nan=False)]
+NonNegativeFinite = Annotated[float, Field(allow_inf_nan=False, ge=0)]
+PositiveFinite = Annotated[float, Field(allow_inf_nan=False, gt=0)]
+Degree = Annotated[int, Field(ge=0, le=2, json_schema_extra={"enum": [0, 1, 2]})]
+
+BANDWIDTH_MESSAGE = 'must be a finite number > 0 or the string "auto"'
+
+
+def _bandwidth(value: Any) -> float | str:
+    """Accept ``"auto"`` or a finite number > 0 (JSON number, not a string)."""
+    if isinstance(value, str):
+        if value == "auto":
+            return value
+        raise ValueError(BANDWIDTH_MESSAGE)
+    if isinstance(value, bool) or not isinstance(value, (int, float)):
+        raise ValueError(BANDWIDTH_MESSAGE)
+    number = float(value)
+    if not math.isfinite(number) or number <= 0:
+        raise ValueError(BANDWIDTH_MESSAGE)
+    return number
+
+
+Bandwidth = Annotated[
+    Union[float, Literal["auto"]],
+    PlainValidator(_bandwidth),
+    WithJsonSchema(
+        {
+            "oneOf": [{"type": "number", "exclusiveMinimum": 0}, {"type": "string", "const": "auto"}],
+            "description": 'Kernel bandwidth in x units (the kernel\'s own scale), or "auto" to choose it with `selector`.',
+            "default": "auto",
+        }
+    ),
+]
+
+
+def _limits(info: ValidationInfo) -> dict[str, int]:
+    context = info.context or {}
+    return context.get("limits") or {}
+
+
+class _Strict(BaseModel):
+    model_config = ConfigDict(extra="forbid", strict=True, frozen=True)
+
+
+class CurveSpec(_Strict):
+    """Where to evaluate the smoothed curve: evenly spaced points, or given x values."""
+
+    points: Annotated[int, Field(ge=2, description="Number of evenly spaced points over the x range (default 200, limit BANDWISE_MAX_CURVE_POINTS = 10,000).")] | None = None
+    at: list[Finite] | None = Field(None, description="Explicit x values (at most BANDWISE_MAX_CURVE_POINTS). Values outside the data range are extrapolated and flagged in `warnings`.")
+
+    @model_validator(mode="after")
+    def _check(self, info: ValidationInfo) -> CurveSpec:
+        if self.points is not None and self.at is not None:
+            raise ValueError('give either "points" or "at", not both')
+        limit = _limits(info).get("max_curve_points")
+        if self.at is not None and len(self.at) == 0:
+            raise ValueError('"at" must hold at least one value')
+        count = self.points if self.points is not None else (len(self.at) if self.at is not None else 0)
+        if limit is not None and count > limit:
+            raise ValueError(f"at most {limit} curve points are allowed, got {count}")
+        return self
+
+
+class BandsSpec(_Strict):
+    """Uncertainty bands for the curve (and for `predict_at`)."""
+
+    method: BandMethod = Field("wild_bootstrap", description="wild_bootstrap (robust to changing noise), residual_bootstrap, or analytic (normal approximation, no resampling).")
+    level: Annotated[float, Field(gt=0, lt=1, allow_inf_nan=False)] = Field(0.95, description="Coverage level in (0, 1).")
+    replicates: Annotated[int, Field(ge=1)] = Field(500, description="Bootstrap replicates (limit BANDWISE_MAX_REPLICATES = 5,000); ignored by analytic.")
+    seed: Annotated[int, Field(ge=0, le=2**63 - 1)] = Field(0, description="Seed of the bootstrap; the same seed gives the same bands.")
+    simultaneous: bool = Field(False, description="False: pointwise bands (each x covered at `level` on its own). True: one band covering the whole curve at once (wider).")
+
+    @model_validator(mode="after")
+    def _check(self, info: ValidationInfo) -> BandsSpec:
+        limit = _limits(info).get("max_replicates")
+        if limit is not None and self.replicates > limit:
+            raise ValueError(f"at most {limit} replicates are allowed, got {self.replicates}")
+        return self
+
+
+class _DataFields(_Strict):
+    x: list[Finite] = Field(..., description="Predictor values (finite numbers; epoch-millisecond timestamps work as they are). At most BANDWISE_MAX_POINTS = 2,000,000.")
+    y: list[Finite] = Field(..., description="Responses, same length as x.")
+    weights: list[NonNegativeFinite] | None = Field(None, description="Optional case weights, same length as x, >= 0 and not all zero; points with weight 0 are ignored.")
+    kernel: KernelName = Field("gaussian", description="Kernel; see GET /v1/kernels for the constants.")
+    degree: Degree = Field(1, description="Local polynomial degree: 0 = local constant (Nadaraya–Watson), 1 = local linear, 2 = local quadratic.")
+    selector: SelectorName = Field("gcv", description="Bandwidth selector used when bandwidth is \"auto\". Automatic bandwidths can be implausible (too rough or too smooth): look at the scores and warnings.")
+    rule: RuleName = Field("min", description="min: the best-scoring candidate; one_se: the smoothest candidate within one standard error of the best.")
+    candidates: Annotated[int, Field(ge=2)] = Field(40, description="Number of candidate bandwidths scored by the selector (limit BANDWISE_MAX_CANDIDATES = 200).")
+    bandwidth_min: PositiveFinite | None = Field(None, description="Smallest candidate bandwidth (default: chosen from the data spacing).")
+    bandwidth_max: PositiveFinite | None = Field(None, description="Largest candidate bandwidth (default: chosen from the data range).")
+
+    @model_validator(mode="after")
+    def _check_data(self, info: ValidationInfo) -> Any:
+        limits = _limits(info)
+        n = len(self.x)
+        limit = limits.get("max_points")
+        if limit is not None and n > limit:
+            raise _FieldError("x", f"at most {limit} points are allowed, got {n}")
+        if n < 2:
+            raise _FieldError("x", f"at least 2 points are needed, got {n}")
+        if len(self.y) != n:
+            raise _FieldError("y", f"y has {len(self.y)} values but x has {n}")
+        if self.weights is not None:
+            if len(self.weights) != n:
+                raise _FieldError("weights", f"weights has {len(self.weights)} values but x has {n}")
+            if not any(w > 0 for w in self.weights):
+                raise _FieldError("weights", "at least one weight must be > 0")
+        limit = limits.get("max_candidates")
+        if limit is not None and self.candidates > limit:
+            raise _FieldError("candidates", f"at most {limit} candidates are allowed, got {self.candidates}")
+        if self.bandwidth_min is not None and self.bandwidth_max is not None and self.bandwidth_min >= self.bandwidth_max:
+            raise _FieldError("bandwidth_max", "bandwidth_max must be greater than bandwidth_min")
+        return self
+
+
+class _FieldError(ValueError):
+    """A validation failure that belongs to one named field of the model."""
+
+    def __init__(self, field: str, message: str) -> None:
+        super().__init__(message)
+        self.field = field
+
+
+class SmoothRequest(_DataFields):
+    """One series to smooth."""
+
+    bandwidth: Bandwidth = "auto"
+    engine: EngineName = Field("auto", description="exact: windowed sums over the sorted data; binned: fast grid approximation for large n; auto picks by size.")
+    curve: CurveSpec | None = Field(None, description='Where to evaluate the curve; default {"points": 200} evenly spaced over the x range.')
+    predict_at: list[Finite] | None = Field(None, description="New x values to predict at (at most BANDWISE_MAX_PREDICT_POINTS = 100,000). Values outside the data range are extrapolations and are flagged.")
+    bands: BandsSpec | None = Field(None, description="Ask for uncertainty bands. They are pointwise unless simultaneous is true.")
+    include_fitted: bool = Field(False, description="Also return fitted values and residuals at the data points, in the order given.")
+
+    @model_validator(mode="after")
+    def _check_predict(self, info: ValidationInfo) -> SmoothRequest:
+        limit = _limits(info).get("max_predict_points")
+        if limit is not None and self.predict_at is not None and len(self.predict_at) > limit:
+            raise _FieldError("predict_at", f"at most {limit} prediction points are allowed, got {len(self.predict_at)}")
+        return self
+
+
+class BandwidthRequest(_DataFields):
+    """Data and selection settings for bandwidth selection alone."""
+
+
+class BatchRequest(_Strict):
+    """Many series in one call; each is answered in its own slot."""
+
+    series: list[SmoothRequest] = Field(..., min_length=1, description="The series, each a full smooth request (at most BANDWISE_MAX_BATCH_SERIES = 1,000 series and BANDWISE_MAX_BATCH_POINTS = 2,000,000 points in all).")
+
+
+class BatchEnvelope(_Strict):
+    """Outer shape of a batch request; the series are validated one by one."""
+
+    series: list[dict[str, Any]] = Field(..., min_length=1)
+
+
+# ---------------------------------------------------------------- responses
+
+
+class _Out(BaseModel):
+    model_config = ConfigDict(extra="forbid")
+
+
+class BandwidthOut(_Out):
+    """The bandwidth used, and the selection record when it was chosen automatically."""
+
+    value: float = Field(..., description="Bandwidth in x units, on the kernel's own scale.")
+    selector: str | None = Field(..., description="Selector that chose it; null when the bandwidth was given.")
+    rule: str | None = Field(..., description="Selection rule (min or one_se); null when given.")
+    candidates: list[float] | None = Field(..., description="Candidate bandwidths scored; null when given.")
+    scores: list[float | None] | None = Field(..., description="Score of each candidate (lower is better); null where a candidate could not be scored.")
+    gaussian_equivalent: float | None = Field(None, description="The chosen bandwidth expressed for a gaussian kernel, for comparing across kernels.")
+
+
+class CurveOut(_Out):
+    """The smoothed curve. Bands, when present, are pointwise unless diagnostics.bands.simultaneous is true."""
+
+    x: list[float]
+    estimate: list[float | None] = Field(..., description="Estimate at each x; null where no data lies in the kernel window.")
+    lower: list[float | None] | None = Field(None, description="Lower band (when bands were asked for).")
+    upper: list[float | None] | None = Field(None, description="Upper band (when bands were asked for).")
+    se: list[float | None] | None = Field(None, description="Pointwise standard error of the estimate (when bands were asked for).")
+
+
+class FittedOut(_Out):
+    """Fitted values and residuals at the data points, in the order given."""
+
+    estimate: list[float | None]
+    residuals: list[float | None]
+
+
+class PredictionOut(_Out):
+    """Prediction at one new x."""
+
+    x: float
+    estimate: float | None
+    lower: float | None = Field(None, description="Band for the curve at x (when bands were asked for).")
+    upper: float | None = Field(None, description="Band for the curve at x (when bands were asked for).")
+    interval_lower: float | None = Field(None, description="Prediction interval for a new observation at x (when bands were asked for).")
+    interval_upper: float | None = Field(None, description="Prediction interval for a new observation at x (when bands were asked for).")
+    extrapolated: bool = Field(..., description="True when x lies outside the data range: the estimate extends the local fit beyond the data and can be far off.")
+
+
+class BandsInfo(_Out):
+    method: str
+    level: float
+    simultaneous: bool
+    replicates: int | None
+    seed: int | None
+
+
+class DiagnosticsOut(_Out):
+    """Fit diagnostics."""
+
+    n: int = Field(..., description="Points given.")
+    n_used: int = Field(..., description="Points with weight > 0.")
+    effective_df: float | None = Field(..., description="Trace of the smoother matrix: the equivalent number of parameters.")
+    residual_scale: float | None = Field(..., description="Estimate of the noise standard deviation.")
+    kernel: str
+    degree: int
+    engine: str = Field(..., description="Engine actually used (exact or binned).")
+    x_min: float
+    x_max: float
+    bands: BandsInfo | None = None
+
+
+class WarningOut(_Out):
+    """A caution about the result; `code` is stable, `message` is for a person."""
+
+    code: str = Field(..., description="Stable code, e.g. empty_window, extrapolation, selection_at_grid_edge, flat_selection_score, implausibly_rough, few_points, pointwise_bands.")
+    message: str
+
+
+class SmoothResponse(_Out):
+    """Result of smoothing one series."""
+
+    bandwidth: BandwidthOut
+    curve: CurveOut
+    fitted: FittedOut | None = Field(None, description="Present when include_fitted was true.")
+    predictions: list[PredictionOut] = Field(..., description="One entry per predict_at value, in order (empty when none were asked for).")
+    diagnostics: DiagnosticsOut
+    warnings: list[WarningOut]
+
+
+class BandwidthResponse(_Out):
+    """Result of bandwidth selection."""
+
+    bandwidth: BandwidthOut
+    warnings: list[WarningOut]
+
+
+class FieldErrorOut(_Out):
+    field: str = Field(..., description="Where the problem is, e.g. `y`, `bands.level`, `x[3]`.")
+    message: str
+    type: str = Field(..., description="Stable error type, e.g. missing, finite_number, extra_forbidden.")
+
+
+class Problem(_Out):
+    """RFC 9457 problem details (media type application/problem+json)."""
+
+    model_config = ConfigDict(extra="allow")
+    type: str = Field(..., description="URI reference naming the problem type; GET it for a description.")
+    title: str
+    status: int
+    detail: str
+    instance: str | None = Field(None, description="The request path.")
+    request_id: str | None = Field(None, description="Same as the X-Request-ID response header; quote it when reporting a problem.")
+    errors: list[FieldErrorOut] | None = Field(None, description="Offending fields (validation problems only).")
+
+
+class ProblemSlot(_Out):
+    """A batch slot whose series could not be smoothed."""
+
+    problem: Problem
+
+
+class BatchResponse(_Out):
+    """One slot per series, in the order given."""
+
+    results: list[Union[SmoothResponse, ProblemSlot]]
+
+
+class KernelOut(_Out):
+    name: str
+    support: float | None = Field(..., description="Half-width of the support in bandwidth units: 1 for [-1, 1]; null for unbounded (gaussian).")
+    roughness: float = Field(..., description="R(K), the integral of K(u)^2.")
+    second_moment: float = Field(..., description="mu2(K), the integral of u^2 K(u).")
+    efficiency: float = Field(..., description="Efficiency relative to the Epanechnikov kernel.")
+    canonical_factor: float = Field(..., description="Canonical bandwidth factor delta_0 (Marron and Nolan 1988): multiply bandwidths by ratios of it to convert between kernels.")
+
+
+class KernelsResponse(_Out):
+    kernels: list[KernelOut]
+
+
+class DemoSummary(_Out):
+    name: str
+    title: str
+    description: str
+    n: int
+    x_label: str
+    y_label: str
+    x_unit: str
+    y_unit: str
+
+
+class DemoList(_Out):
+    demos: list[DemoSummary]
+
+
+class DemoData(DemoSummary):
+    x: list[float]
+    y: list[float]
+
+
+class Health(_Out):
+    status: str

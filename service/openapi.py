@@ -1,0 +1,63 @@
+"""The OpenAPI document: FastAPI's generated paths plus request schemas, problem media types and examples."""
+
+from __future__ import annotations
+
+from typing import Any
+
+from fastapi import FastAPI
+from fastapi.openapi.utils import get_openapi
+from pydantic import BaseModel
+
+from .errors import PROBLEM_MEDIA_TYPE, PROBLEM_TYPES
+from .examples import load_examples
+from .models import BandwidthRequest, BatchRequest, SmoothRequest
+
+REQUEST_MODELS: dict[str, type[BaseModel]] = {
+    "/v1/smooth": SmoothRequest,
+    "/v1/smooth/batch": BatchRequest,
+    "/v1/bandwidth": BandwidthRequest,
+}
+
+
+def _add_schema(components: dict[str, Any], model: type[BaseModel]) -> None:
+    schema = model.model_json_schema(ref_template="#/components/schemas/{model}")
+    for name, definition in schema.pop("$defs", {}).items():
+        components.setdefault(name, definition)
+    components[model.__name__] = schema
+
+
+def build_openapi(app: FastAPI) -> dict[str, Any]:
+    """Generate the document once; FastAPI caches it on ``app.openapi_schema``."""
+    if app.openapi_schema:
+        return app.openapi_schema
+    doc = get_openapi(title=app.title, version=app.version, description=app.description, routes=app.routes, tags=app.openapi_tags)
+    components = doc.setdefault("components", {}).setdefault("schemas", {})
+    for path, model in REQUEST_MODELS.items():
+        _add_schema(components, model)
+        operation = doc["paths"].get(path, {}).get("post")
+        if operation is not None:
+            operation["requestBody"] = {
+                "required": True,
+                "content": {"application/json": {"schema": {"$ref": f"#/components/schemas/{model.__name__}"}}},
+            }
+    for methods in doc["paths"].values():
+        for operation in methods.values():
+            for status, response in operation.get("responses", {}).items():
+                content = response.get("content")
+                if status.isdigit() and int(status) >= 400 and content and "application/json" in content:
+                    content[PROBLEM_MEDIA_TYPE] = content.pop("application/json")
+    for example in load_examples():
+        operation = doc["paths"].get(example.path, {}).get(example.method)
+        if operation is None:
+            continue
+        body = operation.get("requestBody", {}).get("content", {}).get("application/json")
+        if body is not None:
+            body.setdefault("examples", {})[example.name] = {"summary": example.summary, "description": example.description, "value": example.request}
+        if example.response is not None:
+            response = operation.setdefault("responses", {}).setdefault(str(example.status), {"description": example.summary})
+            media = PROBLEM_MEDIA_TYPE if example.status >= 400 else "application/json"
+            slot = response.setdefault("content", {}).setdefault(media, {})
+            slot.setdefault("examples", {})[example.name] = {"summary": example.summary, "value": example.response}
+    doc["x-problem-types"] = {t.uri: {"status": t.status, "title": t.title, "description": t.description} for t in PROBLEM_TYPES.values()}
+    app.openapi_schema = doc
+    return doc

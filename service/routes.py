@@ -1,0 +1,124 @@
+"""HTTP routes. Each numerical route reads the raw body and hands it to a worker."""
+
+from __future__ import annotations
+
+from typing import Any
+
+import orjson
+from fastapi import APIRouter, Depends, FastAPI, Request
+from fastapi.responses import FileResponse, HTMLResponse, PlainTextResponse, Response
+
+from .core import Service
+from .docs_text import BANDWIDTH_DESCRIPTION, BATCH_DESCRIPTION, SMOOTH_DESCRIPTION
+from .errors import PROBLEM_TYPES, ProblemError
+from .limits import retry_after
+from .models import (
+    BandwidthResponse,
+    BatchResponse,
+    DemoData,
+    DemoList,
+    Health,
+    KernelsResponse,
+    Problem,
+    SmoothResponse,
+)
+from .static_files import docs_html, index_file
+
+
+def _problems(*statuses: int) -> dict[int | str, dict[str, Any]]:
+    text = {
+        400: "Malformed JSON body.",
+        401: "Missing or wrong API key (only when keys are configured).",
+        404: "Not found.",
+        413: "Body larger than BANDWISE_MAX_BODY_BYTES.",
+        415: "Body not declared as JSON.",
+        422: "Invalid fields (listed in `errors`), or data that cannot be fitted as asked.",
+        429: "Per-client rate limit exceeded; see Retry-After.",
+        503: "Overloaded, deadline exceeded or shutting down; see Retry-After.",
+    }
+    return {s: {"model": Problem, "description": text[s]} for s in statuses}
+
+
+POST_PROBLEMS = _problems(400, 401, 413, 415, 422, 429, 503)
+GET_PROBLEMS = _problems(401, 429, 503)
+
+
+def _json(data: Any, status: int = 200, headers: dict[str, str] | None = None) -> Response:
+    return Response(orjson.dumps(data), status_code=status, media_type="application/json", headers=headers)
+
+
+def api_router(service: Service) -> APIRouter:
+    """The /v1 routes (API key and rate limit apply)."""
+    router = APIRouter(prefix="/v1", dependencies=[Depends(service.guard)])
+
+    @router.post("/smooth", summary="Smooth one series", description=SMOOTH_DESCRIPTION, response_model=None, responses={200: {"model": SmoothResponse, "description": "The fit."}, **POST_PROBLEMS}, tags=["smoothing"])
+    async def smooth(request: Request) -> Response:
+        return await service.submit(request, "smooth")
+
+    @router.post("/smooth/batch", summary="Smooth many series", description=BATCH_DESCRIPTION, response_model=None, responses={200: {"model": BatchResponse, "description": "One slot per series."}, **POST_PROBLEMS}, tags=["smoothing"])
+    async def smooth_batch(request: Request) -> Response:
+        return await service.submit(request, "batch")
+
+    @router.post("/bandwidth", summary="Select a bandwidth", description=BANDWIDTH_DESCRIPTION, response_model=None, responses={200: {"model": BandwidthResponse, "description": "The chosen bandwidth with every candidate's score."}, **POST_PROBLEMS}, tags=["smoothing"])
+    async def bandwidth(request: Request) -> Response:
+        return await service.submit(request, "bandwidth")
+
+    @router.get("/kernels", summary="Kernels and their constants", response_model=None, responses={200: {"model": KernelsResponse, "description": "All kernels."}, **GET_PROBLEMS}, tags=["reference"])
+    async def kernels(request: Request) -> Response:
+        return await service.submit(request, "kernels", with_body=False)
+
+    @router.get("/demo", summary="List the demo series", response_model=None, responses={200: {"model": DemoList, "description": "The demo series (invented Harbour Street scenario)."}, **GET_PROBLEMS}, tags=["demo"])
+    async def demo_list(request: Request) -> Response:
+        return await service.submit(request, "demo_list", with_body=False)
+
+    @router.get("/demo/{name}", summary="One demo series", response_model=None, responses={200: {"model": DemoData, "description": "Data, labels and units."}, **_problems(401, 404, 429, 503)}, tags=["demo"])
+    async def demo(request: Request, name: str) -> Response:
+        return await service.submit(request, "demo", params={"name": name}, with_body=False)
+
+    return router
+
+
+def ops_router(service: Service) -> APIRouter:
+    """Health, readiness, metrics, the demo page, docs and problem descriptions."""
+    router = APIRouter()
+
+    @router.get("/healthz", summary="Liveness", response_model=Health, tags=["operations"])
+    async def healthz() -> Response:
+        return _json({"status": "ok"})
+
+    @router.get("/readyz", summary="Readiness", response_model=None, responses={200: {"model": Health, "description": "Ready for work."}, **_problems(503)}, tags=["operations"])
+    async def readyz(request: Request) -> Response:
+        if service.draining:
+            raise ProblemError("shutting-down", "This process is draining before it stops.", headers=retry_after(service.settings.retry_after_seconds))
+        if not service.ready:
+            raise ProblemError("not-ready", "No worker process is ready yet.", headers=retry_after(1))
+        return _json({"status": "ready", "workers_ready": service.pool.ready_count, "workers": service.pool.size})
+
+    @router.get("/metrics", summary="Prometheus metrics", response_class=PlainTextResponse, tags=["operations"])
+    async def metrics() -> Response:
+        return Response(service.metrics.render(), media_type=service.metrics.content_type)
+
+    @router.get("/", include_in_schema=False)
+    async def index() -> Response:
+        path = index_file()
+        if path is None:
+            raise ProblemError("not-found", "The demo page is not installed.")
+        return FileResponse(path, media_type="text/html")
+
+    @router.get("/docs", include_in_schema=False)
+    async def docs() -> Response:
+        return HTMLResponse(docs_html())
+
+    @router.get("/problems/{slug}", include_in_schema=False)
+    async def problem_type(slug: str) -> Response:
+        kind = PROBLEM_TYPES.get(slug)
+        if kind is None:
+            raise ProblemError("not-found", f"No problem type {slug!r}.")
+        return PlainTextResponse(f"{kind.title} ({kind.status})\n\n{kind.description}\n")
+
+    return router
+
+
+def install_routes(app: FastAPI, service: Service) -> None:
+    app.include_router(api_router(service))
+    app.include_router(ops_router(service))

@@ -1,0 +1,118 @@
+"""Service settings, read from ``BANDWISE_*`` environment variables.
+
+Every limit and default that a deployment may want to change lives here, so
+one place documents them (the README's settings table mirrors this class).
+"""
+
+from __future__ import annotations
+
+import os
+import re
+from typing import Annotated, Any
+
+from pydantic import Field, field_validator
+from pydantic_settings import BaseSettings, NoDecode, SettingsConfigDict
+
+_SHA256_HEX = re.compile(r"^[0-9a-f]{64}$")
+MIB = 1024 * 1024
+
+
+def _default_workers() -> int:
+    """Worker processes: one per usable core."""
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except (AttributeError, OSError):  # pragma: no cover - non-Linux
+        return max(1, os.cpu_count() or 1)
+
+
+def _split_csv(value: Any) -> Any:
+    """Turn ``"a, b,,c"`` into ``["a", "b", "c"]``; leave lists as they are."""
+    if value is None:
+        return []
+    if isinstance(value, str):
+        return [part.strip() for part in value.split(",") if part.strip()]
+    return value
+
+
+class Settings(BaseSettings):
+    """Configuration of one service process.
+
+    Each field is read from the environment variable ``BANDWISE_<FIELD>``
+    (case-insensitive), e.g. ``BANDWISE_MAX_POINTS=500000``.
+    """
+
+    model_config = SettingsConfigDict(env_prefix="BANDWISE_", extra="ignore", frozen=True)
+
+    # Server
+    host: str = Field("127.0.0.1", description="Address `bandwise serve` binds to.")
+    port: int = Field(8000, ge=0, le=65535, description="TCP port (0 picks a free one).")
+    workers: int = Field(default_factory=_default_workers, ge=1, le=256, description="Worker processes doing the numerical work (default: number of cores).")
+    queue_size: int = Field(0, ge=0, le=100_000, description="Requests allowed to wait for a free worker; beyond that the service answers 503 at once. 0 means 4 x workers.")
+    deadline_seconds: float = Field(30.0, gt=0, le=3600, description="Per-request deadline (waiting plus work); past it the work is stopped and the answer is 503.")
+    drain_seconds: float = Field(20.0, ge=0, le=3600, description="On SIGTERM, how long in-flight requests may take to finish before the process exits.")
+    retry_after_seconds: int = Field(2, ge=1, le=3600, description="Value of Retry-After on 503 answers when the service sheds load.")
+
+    # Request limits
+    max_body_bytes: int = Field(64 * MIB, ge=1024, description="Largest request body in bytes (413 beyond, checked while reading).")
+    max_points: int = Field(2_000_000, ge=2, description="Most data points in one series.")
+    max_predict_points: int = Field(100_000, ge=1, description="Most entries in `predict_at`.")
+    max_curve_points: int = Field(10_000, ge=2, description="Most curve points (`curve.points` or `curve.at`).")
+    max_replicates: int = Field(5_000, ge=1, description="Most bootstrap replicates.")
+    max_batch_series: int = Field(1_000, ge=1, description="Most series in one batch.")
+    max_batch_points: int = Field(2_000_000, ge=2, description="Most data points over all series of one batch.")
+    max_candidates: int = Field(200, ge=2, description="Most candidate bandwidths a selector may score.")
+
+    # Defaults
+    default_curve_points: int = Field(200, ge=2, description="Curve points when the request does not say.")
+
+    # Security and cross-origin access
+    api_keys: Annotated[list[str], NoDecode] = Field(default_factory=list, description="Comma-separated SHA-256 hex digests of accepted API keys; empty means no key is needed.")
+    cors_origins: Annotated[list[str], NoDecode] = Field(default_factory=list, description="Comma-separated origins allowed to call the API from a browser; empty turns CORS off.")
+    rate_limit_per_minute: int = Field(0, ge=0, description="Requests per minute allowed per client (API key, else address) on /v1; 0 turns the limit off. Beyond it: 429.")
+    rate_limit_burst: int = Field(0, ge=0, description="Burst size of the per-client limit; 0 means the per-minute figure.")
+
+    # Responses and logs
+    gzip_min_bytes: int = Field(64 * 1024, ge=0, description="API responses at least this large are gzip-compressed when the client accepts gzip.")
+    gzip_level: int = Field(4, ge=1, le=9, description="gzip compression level.")
+    log_level: str = Field("info", description="Log level: debug, info, warning, error.")
+    access_log: bool = Field(True, description="Write one JSON log line per request.")
+
+    @field_validator("api_keys", mode="before")
+    @classmethod
+    def _parse_keys(cls, value: Any) -> Any:
+        keys = [k.lower() for k in _split_csv(value)]
+        for key in keys:
+            if not _SHA256_HEX.match(key):
+                raise ValueError("each API key entry must be the 64-character hex SHA-256 digest of a key, not the key itself")
+        return keys
+
+    @field_validator("cors_origins", mode="before")
+    @classmethod
+    def _parse_origins(cls, value: Any) -> Any:
+        return _split_csv(value)
+
+    @field_validator("log_level")
+    @classmethod
+    def _check_level(cls, value: str) -> str:
+        value = value.lower()
+        if value not in {"debug", "info", "warning", "error", "critical"}:
+            raise ValueError("log_level must be one of debug, info, warning, error, critical")
+        return value
+
+    @property
+    def effective_queue_size(self) -> int:
+        """Waiting-room size of the worker pool."""
+        return self.queue_size or 4 * self.workers
+
+    def limits(self) -> dict[str, int]:
+        """The request limits, as handed to request validation."""
+        return {
+            "max_points": self.max_points,
+            "max_predict_points": self.max_predict_points,
+            "max_curve_points": self.max_curve_points,
+            "max_replicates": self.max_replicates,
+            "max_batch_series": self.max_batch_series,
+            "max_batch_points": self.max_batch_points,
+            "max_candidates": self.max_candidates,
+            "default_curve_points": self.default_curve_points,
+        }

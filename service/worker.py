@@ -1,0 +1,50 @@
+"""Worker process: receives :class:`~service.jobs.Job` objects, sends back :class:`~service.jobs.Outcome`.
+
+Each worker owns one end of a pipe.  It parses, validates and computes in its
+own interpreter, so a heavy fit holds neither the event loop nor the GIL of
+the HTTP process.  The forkserver imports this module (and with it numpy and
+``estimators``) once; new workers fork from it in milliseconds.
+"""
+
+from __future__ import annotations
+
+import os
+import signal
+from multiprocessing.connection import Connection
+from typing import Any
+
+from . import handlers  # noqa: F401 - imported here so the forkserver preloads numpy and estimators
+from .jobs import Job
+
+
+def worker_main(conn: Connection, config: dict[str, Any]) -> None:
+    """Serve jobs on ``conn`` until it closes or a ``None`` message arrives.
+
+    Parameters
+    ----------
+    conn : Connection
+        Pipe end shared with the HTTP process.
+    config : dict
+        ``limits``, ``gzip_min_bytes``, ``gzip_level`` and ``log_level``.
+    """
+    # Ctrl+C in a terminal reaches the whole process group; the HTTP process
+    # decides when workers stop (it drains first), so ignore SIGINT here.
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+    from .logs import configure_logging
+
+    configure_logging(config.get("log_level", "info"))
+    ctx = handlers.JobContext(config["limits"], config["gzip_min_bytes"], config["gzip_level"])
+    conn.send(("ready", os.getpid()))
+    while True:
+        try:
+            job = conn.recv()
+        except (EOFError, OSError):
+            break
+        if not isinstance(job, Job):
+            break
+        outcome = handlers.run_job(job, ctx)
+        try:
+            conn.send(outcome)
+        except (BrokenPipeError, OSError):
+            break
+    conn.close()
