@@ -31,20 +31,20 @@ __all__ = ["poly_window_moments", "solve_local"]
 
 
 @njit(cache=True, nogil=True, inline="always", error_model="numpy")
-def _accumulate(xs, q, start, stop, centre, h, jmax, sums, side, sign):  # pragma: no cover - compiled
+def _accumulate(xs, q, start, stop, centre, inv_h, jtop, sums, side, sign):  # pragma: no cover - compiled
     ncol = q.shape[1]
     for i in range(start, stop):
-        v = (xs[i] - centre) / h
+        v = (xs[i] - centre) * inv_h
         for c in range(ncol):
             p = q[i, c] * sign
-            for j in range(jmax + 1):
+            for j in range(jtop[c] + 1):
                 sums[side, c, j] += p
                 p *= v
 
 
 @njit(cache=True, nogil=True, error_model="numpy")
-def poly_window_moments(xs, q, ts, h, coef, in_abs, order, closed, out, lo_out, hi_out):  # pragma: no cover
-    """Fill ``out[k, c, j] = sum_i q[i, c] K(u_i) u_i^j`` for sorted ``xs`` and sorted ``ts``.
+def poly_window_moments(xs, q, ts, h, coef, in_abs, orders, closed, out, lo_out, hi_out):  # pragma: no cover
+    """Fill ``out[k, c, j] = sum_i q[i, c] K(u_i) u_i^j``, ``j <= orders[c]``, for sorted ``xs`` and ``ts``.
 
     ``K(u) = sum_a coef[a] * s^a`` on the window, ``s = |u|`` if ``in_abs`` else ``u``.
     ``lo_out``/``hi_out`` receive the window index range of each query.
@@ -55,7 +55,14 @@ def poly_window_moments(xs, q, ts, h, coef, in_abs, order, closed, out, lo_out, 
     m = ts.size
     ncol = q.shape[1]
     deg_k = coef.size - 1
+    order = 0
+    for c in range(ncol):
+        order = max(order, orders[c])
     jmax = deg_k + order
+    jtop = np.empty(ncol, dtype=np.int64)
+    for c in range(ncol):
+        jtop[c] = deg_k + orders[c]
+    inv_h = 1.0 / h
     nside = 2 if in_abs else 1
     binom = np.zeros((jmax + 1, jmax + 1))
     for a in range(jmax + 1):
@@ -84,7 +91,7 @@ def poly_window_moments(xs, q, ts, h, coef, in_abs, order, closed, out, lo_out, 
         fresh = new_tile != tile
         while lo < n and (xs[lo] < a_edge or (not closed and xs[lo] == a_edge)):
             if not fresh:
-                _accumulate(xs, q, lo, lo + 1, centre, h, jmax, sums, 1 if (in_abs and lo < mid) else 0, -1.0)
+                _accumulate(xs, q, lo, lo + 1, centre, inv_h, jtop, sums, 1 if (in_abs and lo < mid) else 0, -1.0)
             lo += 1
         if hi < lo:
             hi = lo
@@ -92,13 +99,13 @@ def poly_window_moments(xs, q, ts, h, coef, in_abs, order, closed, out, lo_out, 
             mid = lo
         while hi < n and (xs[hi] < b_edge or (closed and xs[hi] == b_edge)):
             if not fresh:
-                _accumulate(xs, q, hi, hi + 1, centre, h, jmax, sums, 0, 1.0)
+                _accumulate(xs, q, hi, hi + 1, centre, inv_h, jtop, sums, 0, 1.0)
             hi += 1
         if in_abs:
             while mid < hi and xs[mid] < t:
                 if not fresh:
-                    _accumulate(xs, q, mid, mid + 1, centre, h, jmax, sums, 0, -1.0)
-                    _accumulate(xs, q, mid, mid + 1, centre, h, jmax, sums, 1, 1.0)
+                    _accumulate(xs, q, mid, mid + 1, centre, inv_h, jtop, sums, 0, -1.0)
+                    _accumulate(xs, q, mid, mid + 1, centre, inv_h, jtop, sums, 1, 1.0)
                 mid += 1
             if mid > hi:
                 mid = hi
@@ -107,10 +114,10 @@ def poly_window_moments(xs, q, ts, h, coef, in_abs, order, closed, out, lo_out, 
             centre = origin + (tile + 0.5) * h
             sums[:, :, :] = 0.0
             if in_abs:
-                _accumulate(xs, q, lo, mid, centre, h, jmax, sums, 1, 1.0)
-                _accumulate(xs, q, mid, hi, centre, h, jmax, sums, 0, 1.0)
+                _accumulate(xs, q, lo, mid, centre, inv_h, jtop, sums, 1, 1.0)
+                _accumulate(xs, q, mid, hi, centre, inv_h, jtop, sums, 0, 1.0)
             else:
-                _accumulate(xs, q, lo, hi, centre, h, jmax, sums, 0, 1.0)
+                _accumulate(xs, q, lo, hi, centre, inv_h, jtop, sums, 0, 1.0)
         lo_out[k] = lo
         hi_out[k] = hi
         for c in range(ncol):
@@ -118,18 +125,18 @@ def poly_window_moments(xs, q, ts, h, coef, in_abs, order, closed, out, lo_out, 
                 out[k, c, j] = 0.0
         if hi <= lo:
             continue
-        delta = (centre - t) / h
+        delta = (centre - t) * inv_h
         dpow[0] = 1.0
         for j in range(1, jmax + 1):
             dpow[j] = dpow[j - 1] * delta
         for side in range(nside):
             for c in range(ncol):
-                for big in range(jmax + 1):
+                for big in range(jtop[c] + 1):
                     acc = 0.0
                     for j in range(big + 1):
                         acc += binom[big, j] * dpow[big - j] * sums[side, c, j]
                     raw[big] = acc
-                for j in range(order + 1):
+                for j in range(orders[c] + 1):
                     acc = 0.0
                     for a in range(deg_k + 1):
                         acc += kmap[side, a] * raw[a + j]

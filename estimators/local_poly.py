@@ -57,16 +57,21 @@ class SortedSample:
         ``y`` costs no digits.
     """
 
-    def __init__(self, x: np.ndarray, y: np.ndarray, w: np.ndarray) -> None:
+    def __init__(self, x: np.ndarray, y: np.ndarray, w: np.ndarray, unit_weights: bool = False) -> None:
         self.x, self.y, self.w = x, y, w
         self.order = np.argsort(x)
-        xs, ys, ws = x[self.order], y[self.order], w[self.order]
-        keep = ws > 0
-        if not keep.all():
-            xs, ys, ws = xs[keep], ys[keep], ws[keep]
+        xs, ys = x[self.order], y[self.order]
+        if unit_weights:
+            ws = np.ones_like(xs)
+        else:
+            ws = w[self.order]
+            keep = ws > 0
+            if not keep.all():
+                xs, ys, ws = xs[keep], ys[keep], ws[keep]
         self.xs, self.ys, self.ws = xs, ys, ws
-        self.y_centre = float(np.sum(ws * ys) / np.sum(ws))
+        self.y_centre = float(np.mean(ys) if unit_weights else np.sum(ws * ys) / np.sum(ws))
         self.yc = ys - self.y_centre
+        self._values: np.ndarray | None = None
         new = np.empty(xs.size, dtype=np.int64)
         new[0] = 1
         new[1:] = xs[1:] != xs[:-1]
@@ -82,8 +87,13 @@ class SortedSample:
         return int(self.xs.size)
 
     def values(self) -> np.ndarray:
-        """Value columns ``[w, w (y - y_centre)]`` for the moment sums."""
-        return np.stack([self.ws, self.ws * self.yc], axis=1)
+        """Value columns ``[w, w (y - y_centre)]`` for the moment sums (computed once)."""
+        if self._values is None:
+            vals = np.empty((self.xs.size, 2))
+            vals[:, 0] = self.ws
+            np.multiply(self.ws, self.yc, out=vals[:, 1])
+            self._values = vals
+        return self._values
 
 
 def _as_float_array(name: str, value: Any) -> np.ndarray:
@@ -115,7 +125,9 @@ def validate_sample(x: Any, y: Any, weights: Any = None) -> SortedSample:
     if xa.size != ya.size:
         raise ValueError(f"x and y must have the same length, got {xa.size} and {ya.size}")
     if weights is None:
-        wa = np.ones_like(xa)
+        if xa.size < 2:
+            raise ValueError(f"need at least 2 points, got {xa.size}")
+        return SortedSample(xa, ya, np.ones_like(xa), unit_weights=True)
     else:
         wa = _as_float_array("weights", weights)
         if wa.size != xa.size:
@@ -350,7 +362,9 @@ class Smoother:
         counts = np.empty(t.size, dtype=np.int64)
         for start in range(0, t.size, _BLOCK):
             sl = slice(start, min(start + _BLOCK, t.size))
-            mom, lo, hi = moment_sums_sorted(xs, values, t[sl], self.kernel_spec, self.bandwidth, 2 * p, engine=engine)
+            mom, lo, hi = moment_sums_sorted(
+                xs, values, t[sl], self.kernel_spec, self.bandwidth, 2 * p, engine=engine, column_orders=(2 * p, p)
+            )
             counts[sl] = np.maximum(hi - lo, 0)
             if _compiled is not None:
                 _compiled.solve_local(mom, lo, hi, self.sample.distinct_prefix, p, _SINGULAR, beta[sl], inv[sl], deg[sl])

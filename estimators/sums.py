@@ -68,6 +68,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from typing import Sequence
 import numpy as np
 from scipy import signal
 from scipy.special import comb
@@ -492,8 +493,13 @@ def moment_sums_sorted(
     *,
     power: int = 1,
     engine: str = "exact",
+    column_orders: Sequence[int] | None = None,
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """:func:`moment_sums` for ascending ``points``; also returns the window bounds ``lo, hi``."""
+    """:func:`moment_sums` for ascending ``points``; also returns the window bounds ``lo, hi``.
+
+    ``column_orders`` may lower the order needed for some columns (entries
+    above it are then left at zero by the compiled path and are not to be used).
+    """
     if engine == "binned":
         mom = _binned_moments(x, q, points, kernel, bandwidth, order, power)
     elif engine != "exact":
@@ -506,9 +512,12 @@ def moment_sums_sorted(
             mom = np.empty((points.size, q.shape[1], order + 1))
             lo = np.empty(points.size, dtype=np.int64)
             hi = np.empty(points.size, dtype=np.int64)
+            orders = np.full(q.shape[1], order, dtype=np.int64)
+            if column_orders is not None:
+                orders[:] = np.minimum(np.asarray(column_orders, dtype=np.int64), order)
             _compiled.poly_window_moments(
                 x, np.ascontiguousarray(q), points, float(bandwidth), np.asarray(shape.poly, dtype=float),
-                bool(shape.in_abs), int(order), not kernel.vanishes_at_edge, mom, lo, hi,
+                bool(shape.in_abs), orders, not kernel.vanishes_at_edge, mom, lo, hi,
             )
             return mom, lo, hi
         mom = _compact_moments(x, q, points, kernel, shape, bandwidth, order)
