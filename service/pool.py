@@ -111,7 +111,7 @@ def _context() -> multiprocessing.context.BaseContext:
         ctx = multiprocessing.get_context("forkserver")
     except ValueError:  # pragma: no cover - platforms without fork
         return multiprocessing.get_context("spawn")
-    ctx.set_forkserver_preload(["service.worker"])
+    ctx.set_forkserver_preload(["service.worker", "service.handlers", "service.warmup"])
     return ctx
 
 

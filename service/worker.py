@@ -2,8 +2,9 @@
 
 Each worker owns one end of a pipe.  It parses, validates and computes in its
 own interpreter, so a heavy fit holds neither the event loop nor the GIL of
-the HTTP process.  The forkserver imports this module (and with it numpy and
-``estimators``) once; new workers fork from it in milliseconds.
+the HTTP process.  This module stays light (the HTTP process imports it to
+name the target); the forkserver preloads :mod:`service.handlers` (and with it
+numpy and ``estimators``) once, so new workers fork in milliseconds.
 """
 
 from __future__ import annotations
@@ -13,7 +14,6 @@ import signal
 from multiprocessing.connection import Connection
 from typing import Any
 
-from . import handlers  # noqa: F401 - imported here so the forkserver preloads numpy and estimators
 from .jobs import Job
 
 
@@ -30,6 +30,7 @@ def worker_main(conn: Connection, config: dict[str, Any]) -> None:
     # Ctrl+C in a terminal reaches the whole process group; the HTTP process
     # decides when workers stop (it drains first), so ignore SIGINT here.
     signal.signal(signal.SIGINT, signal.SIG_IGN)
+    from . import handlers
     from .logs import configure_logging
 
     configure_logging(config.get("log_level", "info"))
