@@ -12,6 +12,7 @@ if [ ! -f "$stamp" ]; then
     python3 -m venv "$venv"
     "$venv/bin/python" -m pip install -q --upgrade pip
     "$venv/bin/python" -m pip install -q -e ".[test]"
+    "$venv/bin/python" -m estimators.warmup
     touch "$stamp"
 fi
 cmd="${1:-serve}"

@@ -1,0 +1,51 @@
+"""Bad input raises ValueError with a message a person understands; undefined points are NaN."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from estimators import fit
+
+
+@pytest.mark.parametrize(
+    ("kwargs", "message"),
+    [
+        ({"x": [1, 2, 3], "y": [1, 2]}, "same length"),
+        ({"x": [1, np.nan, 3], "y": [1, 2, 3]}, "finite"),
+        ({"x": [1, 2, 3], "y": [1, np.inf, 3]}, "finite"),
+        ({"x": [1, 2, 3], "y": [1, 2, 3], "weights": [1, -1, 1]}, ">= 0"),
+        ({"x": [1, 2, 3], "y": [1, 2, 3], "weights": [0, 0, 0]}, "all zero"),
+        ({"x": [1, 2, 3], "y": [1, 2, 3], "bandwidth": 0.0}, "positive"),
+        ({"x": [1, 2, 3], "y": [1, 2, 3], "bandwidth": -1.0}, "positive"),
+        ({"x": [1, 2, 3], "y": [1, 2, 3], "bandwidth": "wide"}, "auto"),
+        ({"x": [1, 2, 3], "y": [1, 2, 3], "kernel": "box"}, "unknown kernel"),
+        ({"x": [1, 2, 3], "y": [1, 2, 3], "degree": 3}, "degree"),
+        ({"x": [1], "y": [1]}, "at least 2"),
+        ({"x": [1, 2, 3], "y": [1, 2, 3], "engine": "gpu"}, "engine"),
+    ],
+)
+def test_bad_input_messages(kwargs: dict, message: str) -> None:
+    kwargs = {"bandwidth": 1.0, **kwargs}
+    with pytest.raises(ValueError, match=message):
+        fit(**kwargs)
+
+
+def test_empty_window_is_nan_and_counted() -> None:
+    x = np.array([0.0, 0.5, 1.0, 9.0, 9.5, 10.0])
+    s = fit(x, np.sin(x), kernel="epanechnikov", bandwidth=1.0)
+    t = np.array([0.5, 5.0, 9.5])
+    est = s.predict(t)
+    assert np.isfinite(est[0]) and np.isnan(est[1]) and np.isfinite(est[2])
+    assert list(s.window_counts(t)) == [3, 0, 3]
+
+
+def test_too_few_distinct_x_drops_degree() -> None:
+    """Two distinct x values in a window cannot carry a quadratic: the fit there is linear."""
+    x = np.array([0.0, 0.0, 1.0, 1.0, 5.0, 5.1, 5.2, 5.3])
+    y = np.array([1.0, 1.2, 2.0, 2.2, 0.0, 0.1, 0.2, 0.3])
+    s = fit(x, y, kernel="epanechnikov", degree=2, bandwidth=1.5)
+    sol = s.solve(np.array([0.5, 5.15]))
+    assert list(sol.degree_used) == [1, 2]
+    # the linear fit through the two group means (1.1 at 0, 2.1 at 1) gives 1.6 at 0.5
+    assert s.predict([0.5])[0] == pytest.approx(1.6)
