@@ -131,8 +131,12 @@ def start_gateway(
     to ``prefix/error.log``.
     """
     prefix.mkdir(parents=True, exist_ok=True)
-    # nginx workers may run as an unprivileged user when the tests run as root.
-    prefix.chmod(0o755)
+    # Started as root, nginx would run its workers as "nobody", who cannot reach a
+    # prefix inside pytest's private temp directory; keep them as the current user,
+    # as they are when nginx starts unprivileged (compose runs it as uid 101).
+    global_directives = "daemon off;"
+    if os.geteuid() == 0:
+        global_directives += " user root;"
     conf = render_gateway_config(
         GATEWAY_TEMPLATE.read_text(encoding="utf-8"),
         f"127.0.0.1:{listen_port}",
@@ -144,7 +148,7 @@ def start_gateway(
     errors = open(prefix / "error.log", "wb")  # noqa: SIM115
     try:
         return subprocess.Popen(
-            [nginx, "-p", f"{prefix}/", "-c", str(conf_path), "-e", "stderr", "-g", "daemon off;"],
+            [nginx, "-p", f"{prefix}/", "-c", str(conf_path), "-e", "stderr", "-g", global_directives],
             stdout=access,
             stderr=errors,
             start_new_session=True,

@@ -8,17 +8,20 @@ from __future__ import annotations
 
 import fnmatch
 import json
+import os
 import re
 import shlex
 import subprocess
 import sys
 from pathlib import Path
 
+import httpx
 import pytest
 import yaml
 
+from service.settings import Settings
 from tests.conftest import require_program
-from tests.deploy.support import DEPLOY, REPO
+from tests.deploy.support import DEPLOY, REPO, bandwise_executable, free_port, stop, wait_until_ok
 
 DOCKERFILE = DEPLOY / "Dockerfile"
 
@@ -55,6 +58,11 @@ def env_of(stage: list[tuple[str, str]]) -> dict[str, str]:
                 key, _, value = item.partition("=")
                 env[key] = value
     return env
+
+
+def image_command() -> list[str]:
+    (cmd,) = [json.loads(rest) for kw, rest in stages()[-1] if kw == "CMD"]
+    return cmd
 
 
 def hadolint() -> str:
@@ -118,21 +126,55 @@ def test_runs_as_non_root_with_healthcheck_and_writable_tmp() -> None:
     assert env["TMPDIR"] == "/tmp" and env["PYTHONDONTWRITEBYTECODE"] == "1"
 
 
-def test_command_takes_host_port_and_workers_from_the_environment() -> None:
+def test_command_is_the_service_itself_configured_by_environment(monkeypatch: pytest.MonkeyPatch) -> None:
     final = stages()[-1]
     env = env_of(final)
-    (cmd,) = [json.loads(rest) for kw, rest in final if kw == "CMD"]
-    shell_line = cmd[-1]
-    assert shell_line.startswith("exec bandwise serve"), "exec keeps the service as PID 1 for SIGTERM"
-    for name in ("BANDWISE_HOST", "BANDWISE_PORT", "BANDWISE_WORKERS"):
-        assert f"${name}" in shell_line and name in env
+    cmd = image_command()
+    assert cmd[:2] == ["sh", "-c"] and cmd[2].endswith("; exec bandwise serve"), "exec: the service is PID 1 and receives SIGTERM"
+    assert not [rest for kw, rest in final if kw == "ENTRYPOINT"]
+    # numba ignores a cache directory it cannot write: it must be under TMPDIR.
+    assert env["NUMBA_CACHE_DIR"].startswith(env["TMPDIR"] + "/")
+    build_runs = " ".join(rest for kw, rest in stages()[0] if kw == "RUN")
+    assert "-m estimators.warmup" in build_runs
+    settings_env = {k: v for k, v in env.items() if k.startswith("BANDWISE_")}
+    known = {f"BANDWISE_{name.upper()}" for name in Settings.model_fields}
+    assert set(settings_env) <= known
+    for key, value in settings_env.items():
+        monkeypatch.setenv(key, value)
+    settings = Settings()
+    assert settings.host == "0.0.0.0" and settings.workers >= 1
     (expose,) = [rest for kw, rest in final if kw == "EXPOSE"]
-    assert expose == env["BANDWISE_PORT"]
+    assert int(expose) == settings.port
     deployment = yaml.safe_load((DEPLOY / "k8s" / "deployment.yaml").read_text(encoding="utf-8"))
-    (container,) = deployment["spec"]["template"]["spec"]["containers"]
-    assert [p["containerPort"] for p in container["ports"]] == [int(expose)]
+    pod = deployment["spec"]["template"]["spec"]
+    (container,) = pod["containers"]
+    assert [p["containerPort"] for p in container["ports"]] == [settings.port]
     uid = [rest for kw, rest in final if kw == "USER"][-1].split(":")[0]
-    assert int(uid) == deployment["spec"]["template"]["spec"]["securityContext"]["runAsUser"]
+    assert int(uid) == pod["securityContext"]["runAsUser"]
+
+
+@pytest.mark.system
+def test_image_command_serves_from_environment_alone(tmp_path: Path) -> None:
+    """The image's command, run as the image runs it: every setting from the environment."""
+    port = free_port()
+    bin_dir = str(Path(bandwise_executable()).parent)
+    env = {**os.environ, "BANDWISE_HOST": "127.0.0.1", "BANDWISE_PORT": str(port), "BANDWISE_WORKERS": "1",
+           "TMPDIR": str(tmp_path), "PATH": bin_dir + os.pathsep + os.environ.get("PATH", "")}
+    with open(tmp_path / "serve.log", "wb") as log:
+        # /opt/bandwise/numba-cache does not exist here: the copy fails quietly, as the
+        # command allows (numba then uses its cache beside the sources).
+        proc = subprocess.Popen(image_command(), env=env, stdout=log, stderr=subprocess.STDOUT)
+    try:
+        wait_until_ok(f"http://127.0.0.1:{port}/readyz", proc)
+        assert httpx.get(f"http://127.0.0.1:{port}/readyz", timeout=5.0).json()["workers"] == 1
+        # The HEALTHCHECK command itself, run as the image would run it.
+        (healthcheck,) = [rest for kw, rest in stages()[-1] if kw == "HEALTHCHECK"]
+        probe = json.loads(healthcheck[healthcheck.index("CMD") + 3:].strip())
+        assert probe[0] == "python"
+        result = subprocess.run([sys.executable, *probe[1:]], env={**env, "BANDWISE_PORT": str(port)}, timeout=30)
+        assert result.returncode == 0
+    finally:
+        assert stop(proc) == 0, "SIGTERM with nothing in flight: a clean exit"
 
 
 def dockerignore_keeps(path: str, patterns: list[str]) -> bool:
