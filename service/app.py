@@ -65,6 +65,19 @@ async def _on_request_validation(request: Request, exc: Exception) -> Response:
     return _problem_response(request, 422, doc)
 
 
+class ProblemCORSMiddleware(CORSMiddleware):
+    """CORS allow-list whose refused preflights are problem documents like every other error."""
+
+    def preflight_response(self, request_headers: Any) -> Response:
+        response = super().preflight_response(request_headers)
+        if response.status_code == 400:
+            detail = response.body.decode("utf-8", "replace") + " (not in BANDWISE_CORS_ORIGINS or not an allowed method/header)."
+            body = orjson.dumps({"type": "/problems/malformed-request", "title": "CORS preflight refused", "status": 400, "detail": detail})
+            headers = {k: v for k, v in response.headers.items() if k.lower() not in ("content-length", "content-type")}
+            return Response(body, status_code=400, media_type=PROBLEM_MEDIA_TYPE, headers=headers)
+        return response
+
+
 def create_app(settings: Settings | None = None) -> FastAPI:
     """Build the Bandwise app.
 
@@ -118,7 +131,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     app.openapi = lambda: build_openapi(app)  # type: ignore[method-assign]
     if settings.cors_origins:
         app.add_middleware(
-            CORSMiddleware,
+            ProblemCORSMiddleware,
             allow_origins=settings.cors_origins,
             allow_methods=["GET", "POST"],
             allow_headers=["Authorization", "Content-Type", "X-Request-ID"],

@@ -131,7 +131,7 @@ def _smooth_arrays(req: SmoothRequest, x: Any, y: Any, weights: Any, limits: dic
         selector=req.selector,
         rule=req.rule,
         engine=req.engine,
-        candidates=req.candidates,
+        candidates=_candidates(req, limits),
         bandwidth_min=req.bandwidth_min,
         bandwidth_max=req.bandwidth_max,
     )
@@ -229,6 +229,12 @@ def _smooth_arrays(req: SmoothRequest, x: Any, y: Any, weights: Any, limits: dic
     return body
 
 
+def _candidates(req: Any, limits: dict[str, int]) -> int:
+    """The candidate count asked for; the default is capped by the operator's limit."""
+    limit = limits.get("max_candidates")
+    return int(req.candidates) if limit is None else int(min(req.candidates, limit))
+
+
 def _nullable(values: np.ndarray) -> list[float | None]:
     """Floats with NaN/inf replaced by None (JSON null)."""
     values = np.asarray(values, dtype=float)
@@ -263,7 +269,7 @@ def _point_cautions(what: str, points: np.ndarray, estimate: np.ndarray, extrapo
     return out
 
 
-def select_only(req: BandwidthRequest) -> dict[str, Any]:
+def select_only(req: BandwidthRequest, limits: dict[str, int]) -> dict[str, Any]:
     """Answer one validated bandwidth request."""
     try:
         with np.errstate(all="ignore"):
@@ -275,7 +281,7 @@ def select_only(req: BandwidthRequest) -> dict[str, Any]:
                 selector=req.selector,
                 rule=req.rule,
                 weights=_array(req.weights),
-                candidates=req.candidates,
+                candidates=_candidates(req, limits),
                 bandwidth_min=req.bandwidth_min,
                 bandwidth_max=req.bandwidth_max,
             )
@@ -300,7 +306,7 @@ def _bandwidth_job(job: Job, ctx: JobContext) -> tuple[Any, int]:
         req = BandwidthRequest.model_validate_json(job.body, context=ctx.validation_context)
     except ValidationError as exc:
         raise _validation_problem(exc, "The bandwidth request has invalid fields; see errors.") from None
-    return select_only(req), len(req.x)
+    return select_only(req, ctx.limits), len(req.x)
 
 
 def _batch_job(job: Job, ctx: JobContext) -> tuple[Any, int]:

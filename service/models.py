@@ -144,7 +144,7 @@ class _DataFields(_Strict):
             if not any(w > 0 for w in self.weights):
                 raise _FieldError("weights", "at least one weight must be > 0")
         limit = limits.get("max_candidates")
-        if limit is not None and self.candidates > limit:
+        if limit is not None and "candidates" in self.model_fields_set and self.candidates > limit:
             raise _FieldError("candidates", f"at most {limit} candidates are allowed, got {self.candidates}")
         if self.bandwidth_min is not None and self.bandwidth_max is not None and self.bandwidth_min >= self.bandwidth_max:
             raise _FieldError("bandwidth_max", "bandwidth_max must be greater than bandwidth_min")

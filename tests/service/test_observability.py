@@ -1,0 +1,142 @@
+"""Request ids, JSON access log, Prometheus metrics, health and readiness, internal errors."""
+
+from __future__ import annotations
+
+import json
+import logging
+
+import pytest
+from fastapi import Request
+
+from service.jobs import Job
+from service.logs import JsonFormatter
+
+from .conftest import Harness, problem_ok
+
+BODY = {"x": [1.0, 2.0, 3.0, 4.0, 5.0], "y": [2.0, 1.0, 2.0, 3.0, 2.0], "bandwidth": 1.0}
+
+
+def test_request_id_is_echoed(api: Harness) -> None:
+    response = api.post("/v1/smooth", json=BODY, headers={"x-request-id": "dash-42.retry:1"})
+    assert response.headers["x-request-id"] == "dash-42.retry:1"
+
+
+def test_request_id_is_generated(api: Harness) -> None:
+    a = api.get("/healthz").headers["x-request-id"]
+    b = api.get("/healthz").headers["x-request-id"]
+    assert a != b and len(a) == 32 and int(a, 16) >= 0
+
+
+@pytest.mark.parametrize("bad", ["", "has space", "x" * 129, "semi;colon", "quote\"d"])
+def test_unsafe_request_id_is_replaced(api: Harness, bad: str) -> None:
+    response = api.get("/healthz", headers={"x-request-id": bad})
+    assert response.headers["x-request-id"] != bad
+    assert len(response.headers["x-request-id"]) == 32
+
+
+def test_problem_carries_the_request_id(api: Harness) -> None:
+    response = api.post("/v1/smooth", json={"x": [1]}, headers={"x-request-id": "trace-me"})
+    doc = problem_ok(response, 422)
+    assert doc["request_id"] == "trace-me"
+
+
+def test_one_json_log_line_per_request(api: Harness, caplog: pytest.LogCaptureFixture) -> None:
+    caplog.set_level(logging.INFO, logger="bandwise.access")
+    api.post("/v1/smooth", json=BODY, headers={"x-request-id": "log-check-1"})
+    records = [r for r in caplog.records if r.name == "bandwise.access" and r.fields["request_id"] == "log-check-1"]
+    assert len(records) == 1
+    line = JsonFormatter().format(records[0])
+    assert "\n" not in line
+    entry = json.loads(line)
+    assert entry["route"] == "/v1/smooth" and entry["method"] == "POST" and entry["status"] == 200
+    assert entry["points"] == 5
+    assert entry["duration_ms"] > 0
+    assert entry["level"] == "info" and entry["ts"].endswith("Z")
+
+
+def test_log_line_names_the_problem(api: Harness, caplog: pytest.LogCaptureFixture) -> None:
+    caplog.set_level(logging.INFO, logger="bandwise.access")
+    api.post("/v1/smooth", json={"x": [1, 2], "y": [1, 2], "kernel": "box"}, headers={"x-request-id": "log-check-2"})
+    record = next(r for r in caplog.records if r.name == "bandwise.access" and r.fields["request_id"] == "log-check-2")
+    assert record.fields["status"] == 422 and record.fields["problem"] == "validation-error"
+
+
+def _metric(text: str, prefix: str) -> float:
+    values = [float(line.rsplit(" ", 1)[1]) for line in text.splitlines() if line.startswith(prefix)]
+    return sum(values)
+
+
+def test_metrics(api: Harness) -> None:
+    before = api.get("/metrics").text
+    api.post("/v1/smooth", json=BODY)
+    api.post("/v1/smooth", json={**BODY, "x": BODY["x"] * 2, "y": BODY["y"] * 2})
+    api.get("/nowhere")
+    response = api.get("/metrics")
+    assert response.status_code == 200
+    assert response.headers["content-type"].startswith("text/plain")
+    after = response.text
+    ok = 'bandwise_requests_total{method="POST",route="/v1/smooth",status="200"}'
+    assert _metric(after, ok) - _metric(before, ok) == 2
+    assert _metric(after, "bandwise_points_processed_total") - _metric(before, "bandwise_points_processed_total") == 15
+    assert _metric(after, 'bandwise_requests_total{method="GET",route="unmatched",status="404"}') >= 1
+    assert 'bandwise_request_duration_seconds_bucket{le="0.1",route="/v1/smooth"}' in after
+    for name in ("bandwise_work_in_flight", "bandwise_work_waiting", "bandwise_workers_ready", "bandwise_requests_shed_total", "bandwise_worker_restarts_total"):
+        assert name in after, name
+    assert _metric(after, "bandwise_workers_ready") == api.settings.workers
+
+
+def test_healthz_and_readyz(api: Harness) -> None:
+    assert api.get("/healthz").json() == {"status": "ok"}
+    ready = api.get("/readyz")
+    assert ready.status_code == 200
+    assert ready.json()["workers_ready"] == api.settings.workers
+
+
+def test_readyz_turns_503_when_draining() -> None:
+    h = Harness(workers=1)
+    try:
+        h.service.begin_drain()
+        doc = problem_ok(h.get("/readyz"), 503)
+        assert doc["type"] == "/problems/shutting-down"
+        work = h.post("/v1/smooth", json=BODY)
+        problem_ok(work, 503)
+        assert work.headers["retry-after"] and work.headers["connection"] == "close"
+        assert h.get("/healthz").status_code == 200  # still alive while draining
+    finally:
+        h.close()
+
+
+def test_unexpected_exception_is_a_500_problem_without_trace(caplog: pytest.LogCaptureFixture) -> None:
+    h = Harness(workers=1)
+
+    async def boom(request: Request) -> None:
+        raise RuntimeError("secret internals")
+
+    h.app.add_api_route("/v1/boom", boom, methods=["GET"])
+    caplog.set_level(logging.ERROR, logger="bandwise.error")
+    try:
+        response = h.get("/v1/boom", headers={"x-request-id": "boom-1"})
+        doc = problem_ok(response, 500)
+        assert doc["type"] == "/problems/internal-error" and doc["request_id"] == "boom-1"
+        assert "secret internals" not in response.text
+        logged = [r for r in caplog.records if r.name == "bandwise.error"]
+        assert logged and "secret internals" in logged[-1].fields["traceback"]
+        assert h.get("/healthz").status_code == 200
+    finally:
+        h.close()
+
+
+def test_unexpected_exception_in_a_worker_is_a_500_problem(api: Harness) -> None:
+    outcome = api.run(api.service.pool.run(Job("no-such-kind", request_id="w-1", path="/v1/x"), 10.0))
+    assert outcome.status == 500
+    doc = json.loads(outcome.body)
+    assert doc["type"] == "/problems/internal-error" and doc["request_id"] == "w-1"
+    assert "Traceback" not in outcome.body.decode()
+    assert api.post("/v1/smooth", json=BODY).status_code == 200
+
+
+def test_problem_type_uris_resolve(api: Harness) -> None:
+    doc = api.post("/v1/smooth", json={}).json()
+    page = api.get(doc["type"])
+    assert page.status_code == 200 and "Invalid request" in page.text
+    problem_ok(api.get("/problems/no-such-problem"), 404)
