@@ -19,8 +19,6 @@ from tests.deploy.support import DEPLOY
 
 K8S = DEPLOY / "k8s"
 KUBERNETES_VERSIONS = ["1.29", kubernetes_validate.latest_version()]
-# Environment variables that are not service settings but are meant for the image.
-NON_SETTING_ENV = {"OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"}
 
 
 def load_documents(path: Path) -> list[dict[str, Any]]:
@@ -146,7 +144,7 @@ def test_grace_period_covers_pre_stop_pause_and_drain() -> None:
 def test_configmap_holds_only_real_settings_with_valid_values(monkeypatch: pytest.MonkeyPatch) -> None:
     data = resources()["ConfigMap"]["data"]
     known = {f"BANDWISE_{name.upper()}" for name in Settings.model_fields}
-    unknown = set(data) - known - NON_SETTING_ENV
+    unknown = set(data) - known
     assert not unknown, f"not settings of service/settings.py: {sorted(unknown)}"
     assert all(isinstance(v, str) for v in data.values()), "ConfigMap values must be strings"
     for key, value in data.items():
