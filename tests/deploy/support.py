@@ -23,6 +23,7 @@ import httpx
 REPO = Path(__file__).resolve().parents[2]
 DEPLOY = REPO / "deploy"
 GATEWAY_TEMPLATE = DEPLOY / "gateway" / "nginx.conf"
+GATEWAY_RENDER = DEPLOY / "gateway" / "render.sh"
 LISTEN_PLACEHOLDER = "${BANDWISE_GATEWAY_LISTEN}"
 REPLICA_PLACEHOLDER = "${BANDWISE_REPLICA}"
 
@@ -31,6 +32,8 @@ _SIZE_UNITS = {"": 1, "k": 1024, "m": 1024**2, "g": 1024**3}
 
 def render_gateway_config(template: str, listen: str, replicas: Sequence[str]) -> str:
     """Fill the gateway template the way its header comment describes.
+
+    An independent reading of the template's rules, to check ``render.sh`` against.
 
     Parameters
     ----------
@@ -58,6 +61,14 @@ def render_gateway_config(template: str, listen: str, replicas: Sequence[str]) -
         else:
             out.append(line.replace(LISTEN_PLACEHOLDER, listen))
     return "".join(out)
+
+
+def render_with_script(listen: str, replicas: Sequence[str]) -> str:
+    """The gateway configuration as ``deploy/gateway/render.sh`` writes it."""
+    result = subprocess.run(
+        ["sh", str(GATEWAY_RENDER), listen, *replicas], capture_output=True, text=True, timeout=30, check=True
+    )
+    return result.stdout
 
 
 def strip_comments(conf: str) -> str:
@@ -125,7 +136,7 @@ def start_replica(port: int, log_path: Path, env: Mapping[str, str] | None = Non
 def start_gateway(
     nginx: str, prefix: Path, listen_port: int, replica_ports: Sequence[int]
 ) -> subprocess.Popen[bytes]:
-    """Render the gateway template into ``prefix`` and run nginx there in the foreground.
+    """Render the gateway template with ``render.sh`` into ``prefix``; run nginx there in the foreground.
 
     The access log (nginx's stdout) goes to ``prefix/access.log``, the error log
     to ``prefix/error.log``.
@@ -137,11 +148,7 @@ def start_gateway(
     global_directives = "daemon off;"
     if os.geteuid() == 0:
         global_directives += " user root;"
-    conf = render_gateway_config(
-        GATEWAY_TEMPLATE.read_text(encoding="utf-8"),
-        f"127.0.0.1:{listen_port}",
-        [f"127.0.0.1:{port}" for port in replica_ports],
-    )
+    conf = render_with_script(f"127.0.0.1:{listen_port}", [f"127.0.0.1:{port}" for port in replica_ports])
     conf_path = prefix / "nginx.conf"
     conf_path.write_text(conf, encoding="utf-8")
     access = open(prefix / "access.log", "wb")  # noqa: SIM115

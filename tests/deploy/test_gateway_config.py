@@ -23,6 +23,7 @@ from tests.deploy.support import (
     nginx_seconds,
     nginx_size,
     render_gateway_config,
+    render_with_script,
     strip_comments,
 )
 
@@ -90,6 +91,12 @@ def test_rendering_leaves_no_placeholder() -> None:
     assert directive_values(rendered, "listen") == ["127.0.0.1:18080"]
 
 
+def test_render_script_follows_the_template_rules() -> None:
+    for replicas in (REPLICAS[:1], REPLICAS):
+        assert render_with_script("127.0.0.1:18080", replicas) == render_gateway_config(TEMPLATE, "127.0.0.1:18080", replicas)
+    assert subprocess.run(["sh", str(DEPLOY / "gateway" / "render.sh"), "8080"], capture_output=True, timeout=30).returncode == 2
+
+
 def test_request_id_is_kept_or_generated_and_passed_on() -> None:
     conf = strip_comments(TEMPLATE)
     match = re.search(r"map\s+\$http_x_request_id\s+\$(\w+)\s*\{(.*?)\n\s*\}", conf, re.DOTALL)
@@ -118,7 +125,7 @@ def test_gzip_covers_json_and_problem_responses() -> None:
 def test_rendered_config_is_accepted_by_nginx(tmp_path) -> None:  # type: ignore[no-untyped-def]
     nginx = require_program("nginx")
     conf = tmp_path / "nginx.conf"
-    conf.write_text(render_gateway_config(TEMPLATE, "127.0.0.1:18080", REPLICAS), encoding="utf-8")
+    conf.write_text(render_with_script("127.0.0.1:18080", REPLICAS), encoding="utf-8")
     result = subprocess.run(
         [nginx, "-t", "-p", f"{tmp_path}/", "-c", str(conf), "-e", "stderr"],
         capture_output=True, text=True, timeout=30,
