@@ -1,0 +1,150 @@
+"""Write the example requests and record their responses from the real app.
+
+Run from the repository root::
+
+    python openapi_examples/generate.py
+
+Requests are built from the invented Harbour Street demo data
+(``estimators.demo``).  Responses are recorded by sending each request to an
+in-process app (real worker processes, real ``estimators``), so they are a
+regression contract: ``tests/service/test_examples.py`` replays every request
+and compares the answer with the recorded file field by field.  Re-run this
+script when the numerics change on purpose, and review the diff.
+"""
+
+from __future__ import annotations
+
+import asyncio
+import json
+import sys
+from pathlib import Path
+from typing import Any
+
+HERE = Path(__file__).resolve().parent
+sys.path.insert(0, str(HERE.parent))
+
+HOUR_MS = 3_600_000.0
+
+
+def _cold(step: int) -> tuple[list[float], list[float]]:
+    from estimators.demo import cold_store
+
+    d = cold_store()
+    return d.x[::step].tolist(), d.y[::step].tolist()
+
+
+def _depot(hours: int) -> tuple[list[float], list[float]]:
+    from estimators.demo import parcel_depot
+
+    d = parcel_depot()
+    return d.x[:hours].tolist(), d.y[:hours].tolist()
+
+
+def build() -> list[dict[str, Any]]:
+    """The examples: index entry plus request body each."""
+    cx, cy = _cold(12)
+    dx, dy = _depot(168)
+    return [
+        {
+            "name": "fixed_bandwidth",
+            "path": "/v1/smooth",
+            "status": 200,
+            "summary": "Cold store, fixed bandwidth",
+            "description": "Compressor power (kW) against outdoor temperature (°C), every third hour of the three weeks; Epanechnikov kernel, local linear, bandwidth 2.5 °C, curve at 25 points.",
+            "request": {"x": cx, "y": cy, "kernel": "epanechnikov", "degree": 1, "bandwidth": 2.5, "curve": {"points": 25}},
+        },
+        {
+            "name": "automatic_with_bands",
+            "path": "/v1/smooth",
+            "status": 200,
+            "summary": "Cold store, automatic bandwidth with bootstrap bands",
+            "description": "Bandwidth chosen by GCV over 15 candidates; 95 % pointwise wild-bootstrap bands from 200 replicates (seed 1). The answer carries the pointwise_bands caution.",
+            "request": {"x": cx, "y": cy, "bandwidth": "auto", "selector": "gcv", "candidates": 15, "curve": {"points": 20}, "bands": {"method": "wild_bootstrap", "level": 0.95, "replicates": 200, "seed": 1}},
+        },
+        {
+            "name": "predictions_with_extrapolation",
+            "path": "/v1/smooth",
+            "status": 200,
+            "summary": "Cold store, predictions including extrapolation",
+            "description": "Predicted compressor power at five outdoor temperatures with analytic bands and prediction intervals; 30 °C and 34 °C lie beyond the hottest reading and are flagged extrapolated.",
+            "request": {"x": cx, "y": cy, "bandwidth": 2.0, "curve": {"points": 10}, "predict_at": [10.0, 18.0, 24.0, 30.0, 34.0], "bands": {"method": "analytic", "level": 0.9}},
+        },
+        {
+            "name": "batch",
+            "path": "/v1/smooth/batch",
+            "status": 200,
+            "summary": "Batch: cold store, parcel depot, and one broken series",
+            "description": "Three series in one call. The third has one y value too few, so its slot holds a problem while the other two are answered.",
+            "request": {
+                "series": [
+                    {"x": cx, "y": cy, "bandwidth": 2.5, "curve": {"points": 12}},
+                    {"x": dx, "y": dy, "bandwidth": 3 * HOUR_MS, "curve": {"points": 12}},
+                    {"x": cx[:10], "y": cy[:9], "bandwidth": 2.5},
+                ]
+            },
+        },
+        {
+            "name": "validation_error",
+            "path": "/v1/smooth",
+            "status": 422,
+            "summary": "Validation error: every offending field listed",
+            "description": "A typo in a field name, a negative bandwidth and a level given as a percentage: the 422 problem lists all three.",
+            "request": {"x": cx[:6], "y": cy[:6], "bandwidth": -2.5, "kernal": "gaussian", "bands": {"level": 95}},
+        },
+        {
+            "name": "epoch_ms_timestamps",
+            "path": "/v1/smooth",
+            "status": 200,
+            "summary": "Parcel depot, epoch-millisecond timestamps",
+            "description": "One week of hourly parcel counts; x is epoch milliseconds, so the bandwidth of three hours is 10,800,000 ms. The last prediction is one hour past the data and is flagged extrapolated.",
+            "request": {"x": dx, "y": dy, "bandwidth": 3 * HOUR_MS, "kernel": "gaussian", "curve": {"points": 28}, "predict_at": [dx[0] + 34 * HOUR_MS, dx[-1] + HOUR_MS]},
+        },
+        {
+            "name": "bandwidth_selection",
+            "path": "/v1/bandwidth",
+            "status": 200,
+            "summary": "Cold store, bandwidth selection only",
+            "description": "Leave-one-out cross-validation over 12 candidates; every candidate's score is returned.",
+            "request": {"x": cx, "y": cy, "kernel": "epanechnikov", "selector": "loocv", "candidates": 12},
+        },
+    ]
+
+
+async def _record(examples: list[dict[str, Any]]) -> list[Any]:
+    import httpx
+
+    from service.app import create_app
+    from service.settings import Settings
+
+    app = create_app(Settings(workers=1))
+    async with app.router.lifespan_context(app):
+        assert await app.state.service.pool.wait_ready(60.0)
+        transport = httpx.ASGITransport(app=app)
+        async with httpx.AsyncClient(transport=transport, base_url="http://bandwise.example") as client:
+            out = []
+            for ex in examples:
+                r = await client.post(ex["path"], json=ex["request"], headers={"x-request-id": f"example-{ex['name']}"})
+                if r.status_code != ex["status"]:
+                    raise SystemExit(f"{ex['name']}: expected {ex['status']}, got {r.status_code}: {r.text[:300]}")
+                out.append(r.json())
+            return out
+
+
+def _dump(path: Path, data: Any) -> None:
+    path.write_text(json.dumps(data, indent=1, ensure_ascii=False) + "\n", encoding="utf-8")
+
+
+def main() -> None:
+    examples = build()
+    responses = asyncio.run(_record(examples))
+    index = []
+    for ex, response in zip(examples, responses):
+        _dump(HERE / f"{ex['name']}.request.json", ex["request"])
+        _dump(HERE / f"{ex['name']}.response.json", response)
+        index.append({k: ex[k] for k in ("name", "path", "status", "summary", "description")} | {"method": "post"})
+    _dump(HERE / "index.json", index)
+    print(f"wrote {len(examples)} examples to {HERE}")
+
+
+if __name__ == "__main__":
+    main()

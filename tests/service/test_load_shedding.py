@@ -1,0 +1,85 @@
+"""Bounded pool: queue full -> 503 at once; deadline -> work stopped, 503; service recovers.
+
+One worker, a waiting room of one, and a short deadline.  The heavy job is
+two million points with 5,000 bootstrap replicates: at least 10^10 kernel
+evaluations, so it cannot finish within the deadline on any machine.
+"""
+
+from __future__ import annotations
+
+import time
+from collections.abc import Iterator
+
+import orjson
+import pytest
+
+from .conftest import Harness, problem_ok
+
+SMALL = {"x": [1.0, 2.0, 3.0, 4.0, 5.0], "y": [2.0, 1.0, 2.0, 3.0, 2.0], "bandwidth": 1.0}
+N_HEAVY = 2_000_000
+
+
+@pytest.fixture(scope="module")
+def tight() -> Iterator[Harness]:
+    h = Harness(workers=1, queue_size=1, deadline_seconds=2.0, retry_after_seconds=3)
+    yield h
+    h.close()
+
+
+@pytest.fixture(scope="module")
+def heavy_body() -> bytes:
+    x = list(range(N_HEAVY))
+    y = [i % 2 for i in range(N_HEAVY)]
+    return orjson.dumps({"x": x, "y": y, "bandwidth": 50.0, "engine": "exact", "bands": {"replicates": 5000}})
+
+
+def _wait_for(predicate, limit: float = 30.0) -> None:  # type: ignore[no-untyped-def]
+    stop = time.monotonic() + limit
+    while not predicate():
+        assert time.monotonic() < stop, "condition not reached"
+        time.sleep(0.005)
+
+
+def test_queue_full_is_refused_at_once_and_deadline_stops_the_work(tight: Harness, heavy_body: bytes) -> None:
+    pool = tight.service.pool
+    heavy = tight.submit("POST", "/v1/smooth", content=heavy_body, headers={"content-type": "application/json"})
+    _wait_for(lambda: pool.busy == 1)
+    queued = tight.submit("POST", "/v1/smooth", json=SMALL)
+    _wait_for(lambda: pool.waiting == 1)
+
+    # Worker busy, waiting room full: the next request is refused without waiting.
+    refused = tight.post("/v1/smooth", json=SMALL)
+    doc = problem_ok(refused, 503)
+    assert doc["type"] == "/problems/overloaded"
+    assert refused.headers["retry-after"] == "3"
+    assert not heavy.done()  # refused while the heavy job was still running
+
+    # Liveness does not depend on the workers.
+    assert tight.get("/healthz").status_code == 200
+
+    heavy_response = heavy.result(60)
+    doc = problem_ok(heavy_response, 503)
+    assert doc["type"] == "/problems/deadline-exceeded"
+    assert heavy_response.headers["retry-after"] == "3"
+    assert queued.result(60).status_code in (200, 503)
+
+    # The stuck worker was killed and replaced; the service answers again.
+    assert tight.run(pool.wait_ready(30.0))
+    assert tight.post("/v1/smooth", json=SMALL).status_code == 200
+    metrics = tight.get("/metrics").text
+    assert 'bandwise_worker_restarts_total{reason="deadline"} 1.0' in metrics
+    assert 'bandwise_requests_shed_total{reason="queue_full"} 1.0' in metrics
+    assert 'bandwise_requests_shed_total{reason="deadline"}' in metrics
+
+
+def test_worker_that_dies_is_replaced(tight: Harness) -> None:
+    pool = tight.service.pool
+    assert tight.run(pool.wait_ready(30.0))
+    victim = pool._idle[0]
+    victim.process.kill()
+    victim.process.join(5)
+    response = tight.post("/v1/smooth", json=SMALL, headers={"x-request-id": "lost-1"})
+    doc = problem_ok(response, 500)
+    assert doc["request_id"] == "lost-1"
+    assert tight.run(pool.wait_ready(30.0))
+    assert tight.post("/v1/smooth", json=SMALL).status_code == 200
