@@ -7,6 +7,7 @@ these tests check the file, not an image.
 from __future__ import annotations
 
 import fnmatch
+import importlib.util
 import json
 import os
 import re
@@ -136,6 +137,7 @@ def test_command_is_the_service_itself_configured_by_environment(monkeypatch: py
     assert env["NUMBA_CACHE_DIR"].startswith(env["TMPDIR"] + "/")
     build_runs = " ".join(rest for kw, rest in stages()[0] if kw == "RUN")
     assert "-m estimators.warmup" in build_runs
+    assert importlib.util.find_spec("estimators.warmup") is not None
     settings_env = {k: v for k, v in env.items() if k.startswith("BANDWISE_")}
     known = {f"BANDWISE_{name.upper()}" for name in Settings.model_fields}
     assert set(settings_env) <= known
