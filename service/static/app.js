@@ -116,6 +116,11 @@ function setData(data) {
   $("predict-hint").textContent = data.xIsTime
     ? "Dates as 2024-05-01T12:00 (UTC) or epoch milliseconds. Points outside the data range are extrapolated and drawn hollow."
     : "Points outside the data range are extrapolated and drawn hollow.";
+  $("bw-min").value = "";
+  $("bw-max").value = "";
+  $("bw-range-hint").textContent = data.xIsTime
+    ? "Smallest and largest candidate bandwidth, in milliseconds (1 hour = 3600000). Widen the range when the choice sits at its edge."
+    : "Smallest and largest candidate bandwidth, in x units. Widen the range when the choice sits at its edge.";
   setBandwidthControls(span / 20);
 }
 
@@ -180,6 +185,10 @@ function buildRequest() {
     request.bandwidth = "auto";
     request.selector = $("selector").value;
     request.rule = $("rule").value;
+    const lo = Number($("bw-min").value);
+    const hi = Number($("bw-max").value);
+    if ($("bw-min").value !== "" && lo > 0) request.bandwidth_min = lo;
+    if ($("bw-max").value !== "" && hi > 0) request.bandwidth_max = hi;
   } else {
     request.bandwidth = Number($("bw-value").value);
   }
@@ -387,7 +396,7 @@ function renderDiagnostics(diag) {
     const dd = document.createElement("dd");
     if (key === "residual_scale" && typeof value === "number") dd.textContent = formatY(value);
     else if ((key === "x_min" || key === "x_max") && typeof value === "number") dd.textContent = formatX(value);
-    else if (key === "bands" && value) dd.textContent = describeBands(value);
+    else if (key === "bands") dd.textContent = value ? describeBands(value) : "none requested";
     else if (typeof value === "number") dd.textContent = Number.isInteger(value) ? value.toLocaleString("en") : formatNumber(value, 4);
     else if (value === null) dd.textContent = "not defined";
     else if (typeof value === "object") dd.textContent = JSON.stringify(value);
@@ -561,7 +570,7 @@ function applyPaste() {
 function wire() {
   $("dataset").addEventListener("change", (e) => chooseDataset(e.target.value));
   $("paste-apply").addEventListener("click", applyPaste);
-  for (const id of ["kernel", "degree", "selector", "rule", "band-level", "band-simultaneous", "band-replicates"]) {
+  for (const id of ["kernel", "degree", "selector", "rule", "bw-min", "bw-max", "band-level", "band-simultaneous", "band-replicates"]) {
     $(id).addEventListener("change", scheduleRefit);
   }
   $("band-method").addEventListener("change", () => {

@@ -179,6 +179,20 @@ export function drawMainChart(svg, { data, curve, predictions, meta }) {
   el("rect", { x: box.left, y: box.top, width: box.right - box.left, height: box.bottom - box.top }, clip);
   const plot = el("g", { "clip-path": `url(#${clipId})` }, root);
 
+  // Shade x beyond the data range, where any estimate is an extrapolation.
+  const dataRange = extent(data.x);
+  if (dataRange) {
+    const zones = [[box.left, sx(dataRange[0])], [sx(dataRange[1]), box.right]];
+    for (const [x0, x1] of zones) {
+      if (x1 - x0 < 1) continue;
+      el("rect", { x: r2(x0), y: box.top, width: r2(x1 - x0), height: box.bottom - box.top, class: "zone-extra" }, plot);
+      if (x1 - x0 > 70) {
+        el("text", { x: r2((x0 + x1) / 2), y: box.bottom - 6, "text-anchor": "middle", class: "zone-label" }, plot)
+          .textContent = "beyond the data";
+      }
+    }
+  }
+
   if (curve.lower && curve.upper) {
     el("path", { id: "band-path", class: "area-band", d: areaPath(curve.x, curve.lower, curve.upper, sx, sy) }, plot);
   }

@@ -116,13 +116,16 @@ export function formatIsoInput(ms) {
 /** A duration in milliseconds in words, e.g. "5.2 hours". */
 export function formatDuration(ms) {
   const units = [
-    [DAY, "days"],
-    [HOUR, "hours"],
-    [60e3, "minutes"],
-    [1e3, "seconds"],
+    [DAY, "day"],
+    [HOUR, "hour"],
+    [60e3, "minute"],
+    [1e3, "second"],
   ];
   for (const [size, name] of units) {
-    if (ms >= size) return `${formatNumber(ms / size, 3)} ${name}`;
+    if (ms >= size) {
+      const text = formatNumber(ms / size, 3);
+      return `${text} ${name}${text === "1" ? "" : "s"}`;
+    }
   }
   return `${formatNumber(ms, 3)} ms`;
 }

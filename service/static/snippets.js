@@ -40,13 +40,15 @@ export function pythonSnippet(origin, request, withKey = false) {
     `y = ${pythonLiteral(y)}`,
     "",
     withKey
-      ? `client = BandwiseClient(${JSON.stringify(origin)}, api_key=os.environ["BANDWISE_API_KEY"])`
-      : `client = BandwiseClient(${JSON.stringify(origin)})`,
-    "result = client.smooth(",
-    "    x,",
-    "    y,",
-    ...args,
-    ")",
-    'print(result["bandwidth"]["value"], result["diagnostics"])',
+      ? `with BandwiseClient(${JSON.stringify(origin)}, api_key=os.environ["BANDWISE_API_KEY"]) as client:`
+      : `with BandwiseClient(${JSON.stringify(origin)}) as client:`,
+    "    result = client.smooth(",
+    "        x,",
+    "        y,",
+    ...args.map((a) => `    ${a}`),
+    "    )",
+    "",
+    "print(result.bandwidth.value, result.diagnostics.effective_df)",
+    "curve = result.curve.arrays()  # numpy arrays; NaN where the estimate is undefined",
   ].join("\n");
 }
