@@ -69,8 +69,15 @@ class _Caution:
         self.message = message
 
 
-def _plural(count: int, word: str) -> str:
-    return f"{count} {word}" if count == 1 else f"{count} {word}s"
+def _plural(count: int, word: str, verb: str) -> str:
+    """``"1 curve point lies"`` / ``"3 curve points lie"`` (``verb`` given in the plural)."""
+    singular = {"lie": "lies", "have": "has"}.get(verb, verb + "s")
+    return f"{count} {word} {singular}" if count == 1 else f"{count} {word}s {verb}"
+
+
+def _number(value: float) -> str:
+    """Short but exact enough for a message: 8.71, 1748822400000."""
+    return f"{value:.15g}"
 
 
 def _float_or_none(value: float) -> float | None:
@@ -253,7 +260,7 @@ def _point_cautions(what: str, points: np.ndarray, estimate: np.ndarray, extrapo
             out.append(
                 _Caution(
                     "extrapolation",
-                    f"{_plural(count, what)} lie outside the data range [{s.x_min:g}, {s.x_max:g}]: "
+                    f"{_plural(count, what, 'lie')} outside the data range [{_number(s.x_min)}, {_number(s.x_max)}]: "
                     "there the estimate extends the local fit beyond the data and can be far off.",
                 )
             )
@@ -262,7 +269,7 @@ def _point_cautions(what: str, points: np.ndarray, estimate: np.ndarray, extrapo
         out.append(
             _Caution(
                 "empty_window",
-                f"{_plural(empty, what)} have no data inside the kernel window, so the estimate there is null; "
+                f"{_plural(empty, what, 'have')} no data inside the kernel window, so the estimate there is null; "
                 "use a larger bandwidth or a kernel with unbounded support (gaussian).",
             )
         )
