@@ -27,10 +27,13 @@ import math
 import numpy as np
 from numba import njit
 
-__all__ = ["poly_window_moments", "solve_local"]
+__all__ = ["poly_window_moments", "solve_local", "linear_bin", "keys_interpolate"]
+
+# reassociation and fused multiply-add only: no assumptions about NaN or infinity
+_FAST = {"reassoc", "contract"}
 
 
-@njit(cache=True, nogil=True, inline="always", error_model="numpy")
+@njit(cache=True, nogil=True, inline="always", error_model="numpy", fastmath=_FAST)
 def _accumulate(xs, q, start, stop, centre, inv_h, jtop, sums, side, sign):  # pragma: no cover - compiled
     ncol = q.shape[1]
     for i in range(start, stop):
@@ -42,7 +45,7 @@ def _accumulate(xs, q, start, stop, centre, inv_h, jtop, sums, side, sign):  # p
                 p *= v
 
 
-@njit(cache=True, nogil=True, error_model="numpy")
+@njit(cache=True, nogil=True, error_model="numpy", fastmath=_FAST)
 def poly_window_moments(xs, q, ts, h, coef, in_abs, orders, closed, out, lo_out, hi_out):  # pragma: no cover
     """Fill ``out[k, c, j] = sum_i q[i, c] K(u_i) u_i^j``, ``j <= orders[c]``, for sorted ``xs`` and ``ts``.
 
