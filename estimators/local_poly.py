@@ -27,7 +27,7 @@ import numpy as np
 from .cautions import Caution
 from .kernels import Kernel, get_kernel
 from .sums import _compiled
-from .sums import binned_grid_size, moment_sums, moment_sums_sorted, window_bounds
+from .sums import MomentPlan, binned_grid_size, moment_sums, window_bounds
 
 if TYPE_CHECKING:  # pragma: no cover
     from .bandwidth import Selection
@@ -360,11 +360,10 @@ class Smoother:
         inv = np.empty((t.size, p + 1, p + 1))
         deg = np.empty(t.size, dtype=np.int64)
         counts = np.empty(t.size, dtype=np.int64)
+        plan = MomentPlan(xs, values, self.kernel_spec, self.bandwidth, 2 * p, engine=engine, column_orders=(2 * p, p))
         for start in range(0, t.size, _BLOCK):
             sl = slice(start, min(start + _BLOCK, t.size))
-            mom, lo, hi = moment_sums_sorted(
-                xs, values, t[sl], self.kernel_spec, self.bandwidth, 2 * p, engine=engine, column_orders=(2 * p, p)
-            )
+            mom, lo, hi = plan(t[sl])
             counts[sl] = np.maximum(hi - lo, 0)
             if _compiled is not None:
                 _compiled.solve_local(mom, lo, hi, self.sample.distinct_prefix, p, _SINGULAR, beta[sl], inv[sl], deg[sl])

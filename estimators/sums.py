@@ -70,7 +70,7 @@ import math
 from dataclasses import dataclass
 from typing import Sequence
 import numpy as np
-from scipy import signal
+from scipy import fft as sp_fft
 from scipy.special import comb
 
 from .kernels import Kernel, Shape
@@ -319,69 +319,72 @@ def _hermite_functions(d: np.ndarray, count: int) -> np.ndarray:
     return out
 
 
-def _gauss_transform(
-    x: np.ndarray, q: np.ndarray, points: np.ndarray, bandwidth: float, nderiv: int
-) -> np.ndarray:
-    """``d^k/dw^k sum_i q_i exp(-(x_i - t)^2 / 2h^2)`` in units of ``h``, ``k <= nderiv``.
+class _GaussSources:
+    """Source side of the fast Gauss transform: tile moments ``M[S, c, j] = sum q v^j / j!``."""
 
-    Equals ``sum_i q_i He_k(u_i) exp(-u_i^2/2)`` with ``u_i = (x_i - t)/h``.
-    Returns shape ``(m, ncol, nderiv + 1)``.
-    """
-    n, ncol = q.shape
-    m = points.size
-    out = np.zeros((m, ncol, nderiv + 1))
-    if n == 0 or m == 0:
+    def __init__(self, x: np.ndarray, q: np.ndarray, bandwidth: float) -> None:
+        n, ncol = q.shape
+        self.h = float(bandwidth)
+        self.ncol = ncol
+        self.origin = float(x[0])
+        src_tile = np.floor((x - self.origin) / self.h)
+        v = (x - self.origin) / self.h - (src_tile + 0.5)
+        self.tiles, starts = np.unique(src_tile, return_index=True)
+        self.fact = np.array([math.factorial(j) for j in range(2 * N_TERMS)], dtype=float)
+        self.moments = np.empty((self.tiles.size, ncol, N_TERMS))
+        for c in range(ncol):
+            col = q[:, c].astype(float, copy=True)
+            for j in range(N_TERMS):
+                self.moments[:, c, j] = np.add.reduceat(col, starts) / self.fact[j]
+                col *= v
+
+    def transform(self, points: np.ndarray, nderiv: int) -> np.ndarray:
+        """``d^k/dw^k sum_i q_i exp(-(x_i - t)^2 / 2h^2)`` in units of ``h``, ``k <= nderiv``.
+
+        Equals ``sum_i q_i He_k(u_i) exp(-u_i^2/2)`` with ``u_i = (x_i - t)/h``.
+        Returns shape ``(m, ncol, nderiv + 1)``.
+        """
+        N = N_TERMS
+        fact = self.fact
+        m = points.size
+        out = np.zeros((m, self.ncol, nderiv + 1))
+        if m == 0:
+            return out
+        tgt_tile_all = np.floor((points - self.origin) / self.h)
+        w_all = (points - self.origin) / self.h - (tgt_tile_all + 0.5)
+        ttiles, inverse = np.unique(tgt_tile_all, return_inverse=True)
+        reach = int(math.ceil(GAUSSIAN_CUTOFF)) + 1
+        local = np.zeros((ttiles.size, self.ncol, N))
+        # L_k = sum_j A[k, j] M_j with A[k, j] = (-1)^k f^(j+k)(D) / k!, truncated to j + k < N
+        jk = np.add.outer(np.arange(N), np.arange(N))
+        mask = jk < N
+        sign_k = (-1.0) ** np.arange(N)
+        tiles = self.tiles
+        for off in range(-reach, reach + 1):
+            want = ttiles + off
+            pos = np.searchsorted(tiles, want)
+            pos_c = np.minimum(pos, tiles.size - 1)
+            hit = tiles[pos_c] == want
+            if not hit.any():
+                continue
+            hf = _hermite_functions(np.array(float(off)), 2 * N)
+            amat = hf[jk] * (sign_k / fact[:N])[:, None]  # [k, j]; M already holds 1/j!
+            amat = np.where(mask, amat, 0.0)
+            src = self.moments[pos_c[hit]]  # (hits, ncol, N_j)
+            local[hit] += np.einsum("kj,scj->sck", amat, src)
+
+        # derivative k of sum_n L_n w^n is sum_n L_n n!/(n-k)! w^(n-k)
+        for start in range(0, m, _CHUNK):
+            sl = slice(start, min(start + _CHUNK, m))
+            w = w_all[sl]
+            coeffs = local[inverse[sl]]  # (chunk, ncol, N)
+            wp = np.ones((w.size, N))
+            for j in range(1, N):
+                wp[:, j] = wp[:, j - 1] * w
+            for k in range(nderiv + 1):
+                scale = fact[k:N] / fact[: N - k]
+                out[sl, :, k] = np.einsum("mcn,mn->mc", coeffs[:, :, k:] * scale, wp[:, : N - k])
         return out
-    h = float(bandwidth)
-    N = N_TERMS
-    origin = float(x[0])
-    src_tile = np.floor((x - origin) / h)
-    v = (x - origin) / h - (src_tile + 0.5)
-    tiles, starts = np.unique(src_tile, return_index=True)
-    fact = np.array([math.factorial(j) for j in range(2 * N)], dtype=float)
-
-    # source moments M[S, c, j] = sum q v^j / j!
-    moments = np.empty((tiles.size, ncol, N))
-    for c in range(ncol):
-        col = q[:, c].astype(float, copy=True)
-        for j in range(N):
-            moments[:, c, j] = np.add.reduceat(col, starts) / fact[j]
-            col *= v
-
-    tgt_tile_all = np.floor((points - origin) / h)
-    w_all = (points - origin) / h - (tgt_tile_all + 0.5)
-    ttiles, inverse = np.unique(tgt_tile_all, return_inverse=True)
-    reach = int(math.ceil(GAUSSIAN_CUTOFF)) + 1
-    local = np.zeros((ttiles.size, ncol, N))
-    # L_k = sum_j A[k, j] M_j with A[k, j] = (-1)^k f^(j+k)(D) / k!, truncated to j + k < N
-    jk = np.add.outer(np.arange(N), np.arange(N))
-    mask = jk < N
-    sign_k = (-1.0) ** np.arange(N)
-    for off in range(-reach, reach + 1):
-        want = ttiles + off
-        pos = np.searchsorted(tiles, want)
-        pos_c = np.minimum(pos, tiles.size - 1)
-        hit = tiles[pos_c] == want
-        if not hit.any():
-            continue
-        hf = _hermite_functions(np.array(float(off)), 2 * N)
-        amat = hf[jk] * (sign_k / fact[:N])[:, None]  # [k, j]; M already holds 1/j!
-        amat = np.where(mask, amat, 0.0)
-        src = moments[pos_c[hit]]  # (hits, ncol, N_j)
-        local[hit] += np.einsum("kj,scj->sck", amat, src)
-
-    # derivative k of sum_n L_n w^n is sum_n L_n n!/(n-k)! w^(n-k)
-    for start in range(0, m, _CHUNK):
-        sl = slice(start, min(start + _CHUNK, m))
-        w = w_all[sl]
-        coeffs = local[inverse[sl]]  # (chunk, ncol, N)
-        wp = np.ones((w.size, N))
-        for j in range(1, N):
-            wp[:, j] = wp[:, j - 1] * w
-        for k in range(nderiv + 1):
-            scale = fact[k:N] / fact[: N - k]
-            out[sl, :, k] = np.einsum("mcn,mn->mc", coeffs[:, :, k:] * scale, wp[:, : N - k])
-    return out
 
 
 def _hermite_to_power(order: int) -> np.ndarray:
@@ -394,16 +397,20 @@ def _hermite_to_power(order: int) -> np.ndarray:
     return p
 
 
-def _gaussian_moments(
-    x: np.ndarray, q: np.ndarray, points: np.ndarray, bandwidth: float, order: int, power: int
-) -> np.ndarray:
-    # K(u)^2 = exp(-u^2) / (2 pi) = f(sqrt2 u) / (2 pi): a gaussian at h / sqrt 2
-    h_eff = bandwidth / math.sqrt(power)
-    norm = (2.0 * math.pi) ** (-0.5 * power)
-    raw = _gauss_transform(x, q, points, h_eff, order)  # sum q He_k(u') f(u')
-    powers = raw @ _hermite_to_power(order).T  # sum q u'^k f(u')
-    scale = norm * (1.0 / math.sqrt(power)) ** np.arange(order + 1)  # u = u' / sqrt(power)
-    return powers * scale
+class _GaussianPlan:
+    """Moments for the gaussian kernel (or its square) by the fast Gauss transform."""
+
+    def __init__(self, x: np.ndarray, q: np.ndarray, bandwidth: float, order: int, power: int) -> None:
+        # K(u)^2 = exp(-u^2) / (2 pi) = f(sqrt2 u) / (2 pi): a gaussian at h / sqrt 2
+        self.order = order
+        self.sources = _GaussSources(x, q, bandwidth / math.sqrt(power))
+        self.to_power = _hermite_to_power(order).T
+        norm = (2.0 * math.pi) ** (-0.5 * power)
+        self.scale = norm * (1.0 / math.sqrt(power)) ** np.arange(order + 1)  # u = u' / sqrt(power)
+
+    def __call__(self, points: np.ndarray) -> np.ndarray:
+        raw = self.sources.transform(points, self.order)  # sum q He_k(u') f(u')
+        return (raw @ self.to_power) * self.scale  # sum q u^k K(u)^power
 
 
 # ---------------------------------------------------------------------------
@@ -428,66 +435,70 @@ def binned_grid_size(x_min: float, x_max: float, kernel: Kernel, bandwidth: floa
     return int(math.ceil(span / bandwidth * BINNED_POINTS_PER_BANDWIDTH)) + 4
 
 
-def _binned_moments(
-    x: np.ndarray,
-    q: np.ndarray,
-    points: np.ndarray,
-    kernel: Kernel,
-    bandwidth: float,
-    order: int,
-    power: int,
-    column_orders: Sequence[int] | None = None,
-) -> np.ndarray:
-    n, ncol = q.shape
-    m = points.size
-    out = np.zeros((m, ncol, order + 1))
-    if n == 0 or m == 0:
-        return out
-    orders = [order] * ncol if column_orders is None else [min(order, int(o)) for o in column_orders]
-    h = float(bandwidth)
-    radius = effective_radius(kernel)
-    step = h / BINNED_POINTS_PER_BANDWIDTH
-    start = float(x[0]) - radius * h - 2 * step
-    size = binned_grid_size(float(x[0]), float(x[-1]), kernel, h)
-    reach = int(math.ceil(radius * BINNED_POINTS_PER_BANDWIDTH))
-    lags = np.arange(-reach, reach + 1) * (step / h)
-    kvals = kernel(lags) ** power
-    if _compiled is not None:
-        counts_all = np.zeros((size, ncol))
-        _compiled.linear_bin(x, np.ascontiguousarray(q), start, step, size, counts_all)
-    else:
-        pos = (x - start) / step
-        j = np.clip(np.floor(pos).astype(np.int64), 0, size - 2)
-        frac = pos - j
-        counts_all = np.stack(
-            [
-                np.bincount(j, weights=q[:, c] * (1.0 - frac), minlength=size)
-                + np.bincount(j + 1, weights=q[:, c] * frac, minlength=size)
-                for c in range(ncol)
-            ],
-            axis=1,
-        )
-    grid = np.zeros((size, ncol, order + 1))
-    for c in range(ncol):
-        for k in range(orders[c] + 1):
-            # sum_j c_j K(u) u^k with u = (g_j - g_l) / h: a correlation
-            filt = kvals * lags**k
-            conv = signal.oaconvolve(counts_all[:, c], filt[::-1], mode="full")
-            grid[:, c, k] = conv[reach : reach + size]
-    if _compiled is not None:
-        _compiled.keys_interpolate(grid, start, step, points, out)
-        return out
-    gpos = (points - start) / step
-    inside = (gpos >= 1.0) & (gpos <= size - 3.0)
-    gi = np.floor(np.where(inside, gpos, 1.0)).astype(np.int64)
-    wts = _keys_weights(np.where(inside, gpos, 1.0) - gi)
-    for c in range(ncol):
-        vals = np.zeros((m, order + 1))
+class _BinnedPlan:
+    """Binned moments: linear binning, FFT convolution onto the grid once; cubic interpolation per call."""
+
+    def __init__(
+        self,
+        x: np.ndarray,
+        q: np.ndarray,
+        kernel: Kernel,
+        bandwidth: float,
+        order: int,
+        power: int,
+        column_orders: Sequence[int] | None = None,
+    ) -> None:
+        n, ncol = q.shape
+        self.ncol, self.order = ncol, order
+        orders = [order] * ncol if column_orders is None else [min(order, int(o)) for o in column_orders]
+        h = float(bandwidth)
+        radius = effective_radius(kernel)
+        self.step = step = h / BINNED_POINTS_PER_BANDWIDTH
+        self.start = start = float(x[0]) - radius * h - 2 * step
+        self.size = size = binned_grid_size(float(x[0]), float(x[-1]), kernel, h)
+        reach = int(math.ceil(radius * BINNED_POINTS_PER_BANDWIDTH))
+        lags = np.arange(-reach, reach + 1) * (step / h)
+        kvals = kernel(lags) ** power
+        if _compiled is not None:
+            counts = np.zeros((size, ncol))
+            _compiled.linear_bin(x, np.ascontiguousarray(q), start, step, size, counts)
+        else:
+            pos = (x - start) / step
+            j = np.clip(np.floor(pos).astype(np.int64), 0, size - 2)
+            frac = pos - j
+            counts = np.stack(
+                [
+                    np.bincount(j, weights=q[:, c] * (1.0 - frac), minlength=size)
+                    + np.bincount(j + 1, weights=q[:, c] * frac, minlength=size)
+                    for c in range(ncol)
+                ],
+                axis=1,
+            )
+        # sum_j c_j K(u) u^k with u = (g_j - g_l) / h is a correlation: one forward FFT per
+        # column, one inverse per (column, order)
+        length = sp_fft.next_fast_len(size + 2 * reach, real=True)
+        filters = sp_fft.rfft(np.stack([(kvals * lags**k)[::-1] for k in range(order + 1)]), n=length, axis=1)
+        self.grid = np.zeros((size, ncol, order + 1))
+        for c in range(ncol):
+            spec = sp_fft.rfft(counts[:, c], n=length)
+            for k in range(orders[c] + 1):
+                conv = sp_fft.irfft(spec * filters[k], n=length)
+                self.grid[:, c, k] = conv[reach : reach + size]
+
+    def __call__(self, points: np.ndarray) -> np.ndarray:
+        m = points.size
+        out = np.zeros((m, self.ncol, self.order + 1))
+        if _compiled is not None:
+            _compiled.keys_interpolate(self.grid, self.start, self.step, points, out)
+            return out
+        gpos = (points - self.start) / self.step
+        inside = (gpos >= 1.0) & (gpos <= self.size - 3.0)
+        gi = np.floor(np.where(inside, gpos, 1.0)).astype(np.int64)
+        wts = _keys_weights(np.where(inside, gpos, 1.0) - gi)
         for off in range(4):
-            vals += wts[:, off, None] * grid[gi + off - 1, c, :]
-        vals[~inside] = 0.0
-        out[:, c, :] = vals
-    return out
+            out += wts[:, off, None, None] * self.grid[gi + off - 1]
+        out[~inside] = 0.0
+        return out
 
 
 # ---------------------------------------------------------------------------
@@ -497,6 +508,67 @@ def _binned_moments(
 
 def _is_sorted(a: np.ndarray) -> bool:
     return bool(a.size < 2 or np.all(a[1:] >= a[:-1]))
+
+
+class MomentPlan:
+    """Source-side work done once; call with ascending points (any number of blocks).
+
+    Returns ``(moments, lo, hi)`` per call; see :func:`moment_sums` for the
+    meaning of the arguments. ``column_orders`` may lower the order needed for
+    some columns (entries above it are then zero and are not to be used).
+    """
+
+    def __init__(
+        self,
+        x: np.ndarray,
+        q: np.ndarray,
+        kernel: Kernel,
+        bandwidth: float,
+        order: int,
+        *,
+        power: int = 1,
+        engine: str = "exact",
+        column_orders: Sequence[int] | None = None,
+    ) -> None:
+        self.x, self.q = x, (q[:, None] if q.ndim == 1 else q)
+        self.kernel, self.bandwidth, self.order, self.power = kernel, float(bandwidth), int(order), int(power)
+        self._evaluate = None
+        if engine == "binned":
+            if x.size:
+                self._evaluate = _BinnedPlan(x, self.q, kernel, bandwidth, order, power, column_orders)
+        elif engine != "exact":
+            raise ValueError(f"unknown engine {engine!r}")
+        elif kernel.shape is None:
+            if x.size:
+                self._evaluate = _GaussianPlan(x, self.q, bandwidth, order, power)
+        else:
+            self.shape = kernel.shape if power == 1 else kernel.shape.squared()
+            self.orders = np.full(self.q.shape[1], order, dtype=np.int64)
+            if column_orders is not None:
+                self.orders[:] = np.minimum(np.asarray(column_orders, dtype=np.int64), order)
+            self.q = np.ascontiguousarray(self.q, dtype=float)
+            self._evaluate = self._compact
+
+    def _compact(self, points: np.ndarray) -> np.ndarray:
+        return _compact_moments(self.x, self.q, points, self.kernel, self.shape, self.bandwidth, self.order)
+
+    def __call__(self, points: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        m = points.size
+        if self._evaluate is None or m == 0:
+            zeros = np.zeros(m, dtype=np.int64)
+            return np.zeros((m, self.q.shape[1], self.order + 1)), zeros, zeros.copy()
+        if self._evaluate == self._compact and _compiled is not None and not self.shape.cosines:
+            mom = np.empty((m, self.q.shape[1], self.order + 1))
+            lo = np.empty(m, dtype=np.int64)
+            hi = np.empty(m, dtype=np.int64)
+            _compiled.poly_window_moments(
+                self.x, self.q, points, self.bandwidth, np.asarray(self.shape.poly, dtype=float),
+                bool(self.shape.in_abs), self.orders, not self.kernel.vanishes_at_edge, mom, lo, hi,
+            )
+            return mom, lo, hi
+        mom = self._evaluate(points)
+        lo, hi = window_bounds(self.x, points, self.kernel, self.bandwidth)
+        return mom, lo, hi
 
 
 def moment_sums_sorted(
@@ -511,34 +583,9 @@ def moment_sums_sorted(
     engine: str = "exact",
     column_orders: Sequence[int] | None = None,
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """:func:`moment_sums` for ascending ``points``; also returns the window bounds ``lo, hi``.
-
-    ``column_orders`` may lower the order needed for some columns (entries
-    above it are then left at zero by the compiled path and are not to be used).
-    """
-    if engine == "binned":
-        mom = _binned_moments(x, q, points, kernel, bandwidth, order, power, column_orders)
-    elif engine != "exact":
-        raise ValueError(f"unknown engine {engine!r}")
-    elif kernel.shape is None:
-        mom = _gaussian_moments(x, q, points, bandwidth, order, power)
-    else:
-        shape = kernel.shape if power == 1 else kernel.shape.squared()
-        if _compiled is not None and not shape.cosines and x.size:
-            mom = np.empty((points.size, q.shape[1], order + 1))
-            lo = np.empty(points.size, dtype=np.int64)
-            hi = np.empty(points.size, dtype=np.int64)
-            orders = np.full(q.shape[1], order, dtype=np.int64)
-            if column_orders is not None:
-                orders[:] = np.minimum(np.asarray(column_orders, dtype=np.int64), order)
-            _compiled.poly_window_moments(
-                x, np.ascontiguousarray(q), points, float(bandwidth), np.asarray(shape.poly, dtype=float),
-                bool(shape.in_abs), orders, not kernel.vanishes_at_edge, mom, lo, hi,
-            )
-            return mom, lo, hi
-        mom = _compact_moments(x, q, points, kernel, shape, bandwidth, order)
-    lo, hi = window_bounds(x, points, kernel, bandwidth)
-    return mom, lo, hi
+    """:func:`moment_sums` for ascending ``points``; also returns the window bounds ``lo, hi``."""
+    plan = MomentPlan(x, q, kernel, bandwidth, order, power=power, engine=engine, column_orders=column_orders)
+    return plan(points)
 
 
 def moment_sums(
