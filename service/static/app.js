@@ -106,7 +106,15 @@ async function loadDemo(name) {
   return normaliseDemo(name, body);
 }
 
+/** Forget any fit in flight: its answer belongs to settings that no longer hold. */
+function invalidate() {
+  state.seq += 1;
+  if (state.controller) state.controller.abort();
+  state.controller = null;
+}
+
 function setData(data) {
+  invalidate();
   state.data = data;
   $("dataset-description").textContent = data.description || "";
   const r = extent(data.x) || [0, 1];
@@ -235,7 +243,8 @@ async function refit() {
 }
 
 async function refitOnce(seq) {
-  if (!state.data) return;
+  const data = state.data;
+  if (!data) return;
   let request;
   try {
     request = buildRequest();
@@ -263,9 +272,9 @@ async function refitOnce(seq) {
     if (seq !== state.seq) return;
     if (!response.ok) throw problemError(response, body);
     const elapsed = performance.now() - started;
-    render(request, body);
+    render(data, request, body);
     $("main-chart").dataset.render = String(seq);
-    setStatus(`Fitted ${state.data.x.length.toLocaleString("en")} points in ${Math.round(elapsed)} ms.`);
+    setStatus(`Fitted ${data.x.length.toLocaleString("en")} points in ${Math.round(elapsed)} ms.`);
     $("problem").hidden = true;
   } catch (err) {
     if (err.name === "AbortError" || seq !== state.seq) return;
@@ -322,8 +331,7 @@ const SELECTOR_NAMES = { gcv: "GCV", loocv: "LOOCV", aicc: "AICc", plugin: "plug
 const DEGREE_NAMES = ["Local constant (Nadaraya–Watson, degree 0)", "Local linear (degree 1)", "Local quadratic (degree 2)"];
 const BAND_NAMES = { analytic: "analytic", wild_bootstrap: "wild bootstrap", residual_bootstrap: "residual bootstrap" };
 
-function render(request, response) {
-  const d = state.data;
+function render(d, request, response) {
   const curve = response.curve || { x: [], estimate: [] };
   const predictions = response.predictions || [];
   const chart = drawMainChart($("main-chart"), {

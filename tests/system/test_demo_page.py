@@ -374,6 +374,20 @@ def test_pasted_csv_is_plotted(tab: Page) -> None:
     assert "outdoor_c" in titles and "power_kw" in titles, titles
 
 
+def test_switching_data_during_a_fit_draws_only_the_new_data(tab: Page) -> None:
+    """An answer that arrives after the data changed must not be drawn over the new data."""
+    with tab.page.expect_request(lambda r: r.url == f"{tab.base}/v1/smooth", timeout=WAIT_MS):
+        tab.page.goto(f"{tab.base}/")
+    seen = len(tab.smooth)  # the cold-store fit is in flight now
+    tab.page.select_option("#dataset", "parcel_depot")
+    request, body = tab.settle(seen)
+    demo = httpx.get(f"{tab.base}/v1/demo/parcel_depot", timeout=10.0).json()
+    assert request["x"] == demo["x"]
+    assert tab.attr("#data-points", "data-count") == str(len(demo["x"]))
+    check_chart_matches(tab, request, body)
+    assert float(tab.page.input_value("#bw-value")) == pytest.approx(body["bandwidth"]["value"], rel=1e-3)
+
+
 def test_epoch_milliseconds_show_as_dates(tab: Page) -> None:
     open_page(tab)
     seen = len(tab.smooth)
