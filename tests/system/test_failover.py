@@ -16,6 +16,7 @@ All traffic stays on 127.0.0.0/8; every loop is bounded in count and time.
 
 from __future__ import annotations
 
+import json
 import os
 import re
 import signal
@@ -23,6 +24,7 @@ import subprocess
 import threading
 import time
 from collections import Counter
+from collections.abc import Iterator
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -148,6 +150,7 @@ def test_no_request_is_lost_when_one_replica_dies_and_another_stops(tmp_path: Pa
         killed, stopped, survivor = replicas
         killed_port, stopped_port, _ = ports
 
+        long_body_bytes = json.dumps(long_request()).encode()
         logs = [ClientLog() for _ in range(CLIENTS)]
         start = time.monotonic()
         threads = [
@@ -163,19 +166,31 @@ def test_no_request_is_lost_when_one_replica_dies_and_another_stops(tmp_path: Pa
 
         # A long request straight to the replica about to stop: it is in flight at SIGTERM.
         long_result: dict[str, Any] = {}
+        long_body_sent = threading.Event()
+
+        def long_body() -> Iterator[bytes]:
+            for offset in range(0, len(long_body_bytes), 65_536):
+                yield long_body_bytes[offset : offset + 65_536]
+            long_body_sent.set()
 
         def send_long_request() -> None:
             try:
-                response = httpx.post(f"http://127.0.0.1:{stopped_port}/v1/smooth", json=long_request(), timeout=60.0)
+                response = httpx.post(
+                    f"http://127.0.0.1:{stopped_port}/v1/smooth",
+                    content=long_body(),
+                    headers={"content-type": "application/json"},
+                    timeout=60.0,
+                )
                 long_result["status"] = response.status_code
             except httpx.HTTPError as exc:
                 long_result["error"] = repr(exc)
             long_result["done"] = time.monotonic()
 
         long_thread = threading.Thread(target=send_long_request, daemon=True)
-        time.sleep(max(0.0, start + TERM_AT - 0.5 - time.monotonic()))
+        time.sleep(max(0.0, start + TERM_AT - time.monotonic()))
         long_thread.start()
-        time.sleep(0.5)
+        assert long_body_sent.wait(timeout=10.0), "the long request could not be sent"
+        time.sleep(0.3)  # let the replica read the request; its work takes seconds
         term_sent = time.monotonic()
         stopped.send_signal(signal.SIGTERM)
 
