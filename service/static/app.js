@@ -86,12 +86,9 @@ async function loadDemoList() {
     for (const item of items) {
       const name = typeof item === "string" ? item : item.name;
       const title = typeof item === "string" ? item : item.title || item.name;
-      let option = [...select.options].find((o) => o.value === name);
-      if (!option) {
-        option = new Option(title, name);
-        select.insertBefore(option, select.querySelector('option[value="pasted"]'));
-      } else if (title) {
-        option.textContent = title;
+      // Built-in options keep their short labels; the full title heads the chart.
+      if (![...select.options].some((o) => o.value === name)) {
+        select.insertBefore(new Option(title, name), select.querySelector('option[value="pasted"]'));
       }
     }
   } catch {
@@ -117,6 +114,7 @@ function setData(data) {
   invalidate();
   state.data = data;
   $("dataset-description").textContent = data.description || "";
+  $("chart-heading").textContent = data.title ? `Estimate: ${data.title}` : "Estimate";
   const r = extent(data.x) || [0, 1];
   const span = r[1] - r[0] || 1;
   state.hRange = [span / 400, span];

@@ -286,6 +286,11 @@ def test_chart_is_drawn_from_the_api_response(tab: Page) -> None:
     assert "from service.client import BandwiseClient" in tab.page.inner_text("#python-code")
     ARTIFACTS.mkdir(exist_ok=True)
     tab.page.screenshot(path=str(ARTIFACTS / "demo-page.png"), full_page=True)
+    # The part a reader of the README needs: controls, chart, cautions, score chart and diagnostics.
+    bottom = tab.page.evaluate("() => document.querySelector('#diagnostics-section').getBoundingClientRect().bottom + window.scrollY")
+    tab.page.screenshot(
+        path=str(ARTIFACTS / "demo-page-overview.png"), full_page=True, clip={"x": 0, "y": 0, "width": 1360, "height": bottom + 12}
+    )
 
 
 def test_code_panel_reproduces_the_fit(tab: Page) -> None:
