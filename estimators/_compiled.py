@@ -27,7 +27,7 @@ import math
 import numpy as np
 from numba import njit
 
-__all__ = ["poly_window_moments", "solve_local", "linear_bin", "keys_interpolate"]
+__all__ = ["poly_window_moments", "trig_window_moments", "solve_local", "linear_bin", "keys_interpolate"]
 
 # reassociation and fused multiply-add only: no assumptions about NaN or infinity
 _FAST = {"reassoc", "contract"}
@@ -257,3 +257,89 @@ def keys_interpolate(grid, start, step, points, out):  # pragma: no cover - comp
                 out[k, c, j] = (
                     w0 * grid[gi - 1, c, j] + w1 * grid[gi, c, j] + w2 * grid[gi + 1, c, j] + w3 * grid[gi + 2, c, j]
                 )
+
+
+@njit(cache=True, nogil=True, inline="always", error_model="numpy", fastmath=_FAST)
+def _accumulate_trig(xs, q, start, stop, centre, inv_h, omega, jtop, sums, sign):  # pragma: no cover
+    ncol = q.shape[1]
+    for i in range(start, stop):
+        v = (xs[i] - centre) * inv_h
+        cw = math.cos(omega * v)
+        sw = math.sin(omega * v)
+        for c in range(ncol):
+            pc = q[i, c] * sign * cw
+            ps = q[i, c] * sign * sw
+            for j in range(jtop[c] + 1):
+                sums[0, c, j] += pc
+                sums[1, c, j] += ps
+                pc *= v
+                ps *= v
+
+
+@njit(cache=True, nogil=True, error_model="numpy", fastmath=_FAST)
+def trig_window_moments(xs, q, ts, h, amp, omega, orders, closed, out, lo_out, hi_out):  # pragma: no cover
+    """Add ``amp * sum_i q[i, c] cos(omega u_i) u_i^j`` (``|u_i| <= 1``) to ``out[k, c, j]``.
+
+    Same sweep as :func:`poly_window_moments`; the sums hold ``cos(omega v) v^j``
+    and ``sin(omega v) v^j`` about the tile centre and are moved to ``t`` by the
+    angle-addition formula and the binomial theorem.
+    """
+    n = xs.size
+    m = ts.size
+    ncol = q.shape[1]
+    order = 0
+    for c in range(ncol):
+        order = max(order, orders[c])
+    jtop = np.empty(ncol, dtype=np.int64)
+    for c in range(ncol):
+        jtop[c] = orders[c]
+    binom = np.zeros((order + 1, order + 1))
+    for a in range(order + 1):
+        binom[a, 0] = 1.0
+        for b in range(1, a + 1):
+            binom[a, b] = binom[a - 1, b - 1] + (binom[a - 1, b] if b <= a - 1 else 0.0)
+    inv_h = 1.0 / h
+    sums = np.zeros((2, ncol, order + 1))
+    dpow = np.zeros(order + 1)
+    origin = xs[0] if n > 0 else 0.0
+    lo = 0
+    hi = 0
+    tile = math.nan
+    centre = 0.0
+    for k in range(m):
+        t = ts[k]
+        a_edge = t - h
+        b_edge = t + h
+        new_tile = math.floor((t - origin) / h)
+        fresh = new_tile != tile
+        while lo < n and (xs[lo] < a_edge or (not closed and xs[lo] == a_edge)):
+            if not fresh:
+                _accumulate_trig(xs, q, lo, lo + 1, centre, inv_h, omega, jtop, sums, -1.0)
+            lo += 1
+        if hi < lo:
+            hi = lo
+        while hi < n and (xs[hi] < b_edge or (closed and xs[hi] == b_edge)):
+            if not fresh:
+                _accumulate_trig(xs, q, hi, hi + 1, centre, inv_h, omega, jtop, sums, 1.0)
+            hi += 1
+        if fresh:
+            tile = new_tile
+            centre = origin + (tile + 0.5) * h
+            sums[:, :, :] = 0.0
+            _accumulate_trig(xs, q, lo, hi, centre, inv_h, omega, jtop, sums, 1.0)
+        lo_out[k] = lo
+        hi_out[k] = hi
+        if hi <= lo:
+            continue
+        delta = (centre - t) * inv_h
+        cd = math.cos(omega * delta)
+        sd = math.sin(omega * delta)
+        dpow[0] = 1.0
+        for j in range(1, order + 1):
+            dpow[j] = dpow[j - 1] * delta
+        for c in range(ncol):
+            for big in range(orders[c] + 1):
+                acc = 0.0
+                for j in range(big + 1):
+                    acc += binom[big, j] * dpow[big - j] * (cd * sums[0, c, j] - sd * sums[1, c, j])
+                out[k, c, big] += amp * acc

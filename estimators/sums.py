@@ -557,14 +557,25 @@ class MomentPlan:
         if self._evaluate is None or m == 0:
             zeros = np.zeros(m, dtype=np.int64)
             return np.zeros((m, self.q.shape[1], self.order + 1)), zeros, zeros.copy()
-        if self._evaluate == self._compact and _compiled is not None and not self.shape.cosines:
-            mom = np.empty((m, self.q.shape[1], self.order + 1))
+        if self._evaluate == self._compact and _compiled is not None:
+            mom = np.zeros((m, self.q.shape[1], self.order + 1))
             lo = np.empty(m, dtype=np.int64)
             hi = np.empty(m, dtype=np.int64)
-            _compiled.poly_window_moments(
-                self.x, self.q, points, self.bandwidth, np.asarray(self.shape.poly, dtype=float),
-                bool(self.shape.in_abs), self.orders, not self.kernel.vanishes_at_edge, mom, lo, hi,
-            )
+            closed = not self.kernel.vanishes_at_edge
+            if self.shape.poly:
+                _compiled.poly_window_moments(
+                    self.x, self.q, points, self.bandwidth, np.asarray(self.shape.poly, dtype=float),
+                    bool(self.shape.in_abs), self.orders, closed, mom, lo, hi,
+                )
+            if self.shape.cosines:
+                part = np.zeros_like(mom) if self.shape.poly else mom
+                for amp, omega in self.shape.cosines:
+                    _compiled.trig_window_moments(
+                        self.x, self.q, points, self.bandwidth, float(amp), float(omega), self.orders, closed,
+                        part, lo, hi,
+                    )
+                if part is not mom:
+                    mom += part
             return mom, lo, hi
         mom = self._evaluate(points)
         lo, hi = window_bounds(self.x, points, self.kernel, self.bandwidth)

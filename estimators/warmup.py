@@ -19,7 +19,7 @@ def warm() -> float:
     rng = np.random.default_rng(0)
     x = rng.uniform(0, 10, 200)
     y = np.sin(x) + rng.normal(0, 0.1, x.size)
-    for kernel in ("epanechnikov", "tricube"):
+    for kernel in ("epanechnikov", "tricube", "cosine"):
         for degree in (0, 1, 2):
             s = fit(x, y, kernel=kernel, degree=degree, bandwidth=1.0)
             s.fitted()
