@@ -378,6 +378,23 @@ def test_pasted_csv_is_plotted(tab: Page) -> None:
     titles = tab.page.eval_on_selector_all("#main-chart .axis-title", "els => els.map(e => e.textContent)")
     assert "outdoor_c" in titles and "power_kw" in titles, titles
 
+    # JSON arrays are accepted too.
+    seen = len(tab.smooth)
+    tab.page.fill("#paste", '{"x": [-2, 3, 8, 13, 18, 23], "y": [23.5, 25.6, 27.9, 30.1, 34.6, 39.5]}')
+    tab.page.click("#paste-apply")
+    request, body = tab.settle(seen)
+    assert request["x"] == [-2, 3, 8, 13, 18, 23] and request["y"][-1] == 39.5
+    check_chart_matches(tab, request, body)
+
+    # A malformed paste is refused in words, and nothing is sent.
+    seen = len(tab.smooth)
+    tab.page.fill("#paste", "1,2,3\n4,5,6")
+    tab.page.click("#paste-apply")
+    assert "2 columns" in tab.page.inner_text("#paste-error")
+    assert tab.page.is_visible("#paste-error")
+    tab.page.wait_for_timeout(600)  # longer than the page's debounce: a request would have gone out
+    assert len(tab.smooth) == seen
+
 
 def test_switching_data_during_a_fit_draws_only_the_new_data(tab: Page) -> None:
     """An answer that arrives after the data changed must not be drawn over the new data."""
