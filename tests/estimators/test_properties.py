@@ -29,7 +29,10 @@ def data(draw):  # type: ignore[no-untyped-def]
 
 def _close(a: np.ndarray, b: np.ndarray, scale: float) -> bool:
     both = np.isfinite(a) & np.isfinite(b)
-    return bool(np.array_equal(np.isfinite(a), np.isfinite(b)) and np.all(np.abs(a[both] - b[both]) <= 1e-7 * scale))
+    # relative to the data scale, and to the value itself where a one-sided local fit at the
+    # edge extrapolates far beyond it (its digits then depend on rounding like any solve)
+    tol = 1e-7 * (scale + np.abs(a[both]))
+    return bool(np.array_equal(np.isfinite(a), np.isfinite(b)) and np.all(np.abs(a[both] - b[both]) <= tol))
 
 
 @settings(max_examples=40, deadline=None)
