@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import os
 import shutil
+import sys
 
 import pytest
 
@@ -17,8 +18,13 @@ REQUIRE_SYSTEM_TESTS = os.environ.get("REQUIRE_SYSTEM_TESTS") == "1"
 
 def require_program(*names: str) -> str:
     """Return the path of the first program found, or skip (fail in CI)."""
+    venv_bin = os.path.dirname(sys.executable)  # programs installed by pip into the test venv
     for name in names:
-        path = shutil.which(name) or (f"/usr/sbin/{name}" if os.path.exists(f"/usr/sbin/{name}") else None)
+        path = (
+            shutil.which(name)
+            or shutil.which(name, path=venv_bin)
+            or (f"/usr/sbin/{name}" if os.path.exists(f"/usr/sbin/{name}") else None)
+        )
         if path:
             return path
     message = f"needs one of {names} on PATH"
