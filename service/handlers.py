@@ -125,6 +125,22 @@ def smooth_series(req: SmoothRequest, limits: dict[str, int]) -> dict[str, Any]:
             return _smooth_arrays(req, x, y, weights, limits)
     except ValueError as exc:
         raise ProblemError("unsuitable-data", str(exc)) from None
+    except (ArithmeticError, MemoryError) as exc:
+        raise _extreme(exc) from None
+
+
+def _extreme(exc: BaseException) -> ProblemError:
+    """Overflow or exhausted memory on a valid request: the client's numbers are out of reach.
+
+    Logged with the traceback (so a numerical weakness is visible), answered as 422.
+    """
+    log.warning("arithmetic limit reached", extra={"fields": {"error": repr(exc), "traceback": traceback.format_exc()}})
+    if isinstance(exc, MemoryError):
+        return ProblemError("unsuitable-data", "This fit would need more memory than the service has; use fewer points, fewer curve points or replicates, or a larger bandwidth.")
+    return ProblemError(
+        "unsuitable-data",
+        "The values are too extreme for this fit (arithmetic overflow); rescale x or y, or choose a bandwidth closer to the spacing of the data.",
+    )
 
 
 def _smooth_arrays(req: SmoothRequest, x: Any, y: Any, weights: Any, limits: dict[str, int]) -> dict[str, Any]:
@@ -149,7 +165,7 @@ def _smooth_arrays(req: SmoothRequest, x: Any, y: Any, weights: Any, limits: dic
         cx = np.asarray(curve_spec.at, dtype=float)
     else:
         count = curve_spec.points if curve_spec is not None and curve_spec.points is not None else limits.get("default_curve_points", 200)
-        cx = np.linspace(s.x_min, s.x_max, int(count))
+        cx = _grid(s.x_min, s.x_max, int(count))
     px = _array(req.predict_at)
     bands: BandsSpec | None = req.bands
 
@@ -236,6 +252,17 @@ def _smooth_arrays(req: SmoothRequest, x: Any, y: Any, weights: Any, limits: dic
     return body
 
 
+def _grid(lo: float, hi: float, count: int) -> np.ndarray:
+    """``count`` evenly spaced points from ``lo`` to ``hi`` (both included), without overflow.
+
+    ``lo * (1 - t) + hi * t`` stays finite even when ``hi - lo`` would overflow a double.
+    """
+    t = np.linspace(0.0, 1.0, count)
+    grid = lo * (1.0 - t) + hi * t
+    grid[0], grid[-1] = lo, hi
+    return grid
+
+
 def _candidates(req: Any, limits: dict[str, int]) -> int:
     """The candidate count asked for; the default is capped by the operator's limit."""
     limit = limits.get("max_candidates")
@@ -294,6 +321,8 @@ def select_only(req: BandwidthRequest, limits: dict[str, int]) -> dict[str, Any]
             )
     except ValueError as exc:
         raise ProblemError("unsuitable-data", str(exc)) from None
+    except (ArithmeticError, MemoryError) as exc:
+        raise _extreme(exc) from None
     return {"bandwidth": _bandwidth_object(sel.chosen, sel), "warnings": _cautions(sel.warnings)}
 
 
