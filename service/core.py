@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import asyncio
 import logging
 import time
 
@@ -100,7 +101,10 @@ class Service:
         body = b""
         if with_body:
             check_json_content_type(request)
-            body = await read_body(request, self.settings.max_body_bytes)
+            try:
+                body = await asyncio.wait_for(read_body(request, self.settings.max_body_bytes), self.settings.deadline_seconds)
+            except asyncio.TimeoutError:
+                raise ProblemError("request-timeout", f"The body did not arrive within {self.settings.deadline_seconds:g} s.", headers={"Connection": "close"}) from None
         accept_gzip = cache_key is None and "gzip" in request.headers.get("accept-encoding", "").lower()
         job = Job(kind, body, request_id_of(request.scope), request.url.path, dict(params or {}), accept_gzip)
         try:
@@ -131,6 +135,7 @@ class Service:
     def _response(self, request: Request, outcome: Outcome) -> Response:
         state = request.state
         state.points = outcome.points
+        state.work_seconds = outcome.seconds
         if outcome.problem:
             state.problem = outcome.problem
         if outcome.status == 200 and outcome.points:
@@ -138,6 +143,7 @@ class Service:
         headers: dict[str, str] = {}
         if outcome.encoding:
             headers["Content-Encoding"] = outcome.encoding
+        if outcome.encoding or len(outcome.body) >= self.settings.gzip_min_bytes:
             headers["Vary"] = "Accept-Encoding"
         media = PROBLEM_MEDIA_TYPE if outcome.status >= 400 else outcome.media_type
         return Response(outcome.body, status_code=outcome.status, media_type=media, headers=headers)

@@ -42,6 +42,7 @@ _TYPES = [
     ProblemType("unauthorized", 401, "Unauthorized", "This service needs an API key: send `Authorization: Bearer <key>`."),
     ProblemType("not-found", 404, "Not found", "No resource at this path. GET /docs lists the API."),
     ProblemType("method-not-allowed", 405, "Method not allowed", "The path exists but not for this method; the Allow header lists the methods it takes."),
+    ProblemType("request-timeout", 408, "Request body too slow", "The body did not arrive within BANDWISE_DEADLINE_SECONDS. Send it at once, not trickled."),
     ProblemType("payload-too-large", 413, "Request body too large", "The body is larger than BANDWISE_MAX_BODY_BYTES. Split the data over several requests."),
     ProblemType("unsupported-media-type", 415, "Unsupported media type", "Send the body as JSON with `Content-Type: application/json`."),
     ProblemType("validation-error", 422, "Invalid request", "The JSON is well formed but some fields are missing, unknown, of the wrong type or out of range; `errors` lists each one."),

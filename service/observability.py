@@ -129,6 +129,9 @@ class ObservabilityMiddleware:
                     "duration_ms": round(elapsed * 1000.0, 3),
                     "points": int(state.get("points", 0)),
                 }
+                work = state.get("work_seconds")
+                if work is not None:
+                    fields["work_ms"] = round(work * 1000.0, 3)
                 problem = state.get("problem")
                 if problem:
                     fields["problem"] = problem

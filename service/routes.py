@@ -30,6 +30,7 @@ def _problems(*statuses: int) -> dict[int | str, dict[str, Any]]:
         400: "Malformed JSON body.",
         401: "Missing or wrong API key (only when keys are configured).",
         404: "Not found.",
+        408: "The body did not arrive within the deadline.",
         413: "Body larger than BANDWISE_MAX_BODY_BYTES.",
         415: "Body not declared as JSON.",
         422: "Invalid fields (listed in `errors`), or data that cannot be fitted as asked.",
@@ -39,7 +40,7 @@ def _problems(*statuses: int) -> dict[int | str, dict[str, Any]]:
     return {s: {"model": Problem, "description": text[s]} for s in statuses}
 
 
-POST_PROBLEMS = _problems(400, 401, 413, 415, 422, 429, 503)
+POST_PROBLEMS = _problems(400, 401, 408, 413, 415, 422, 429, 503)
 GET_PROBLEMS = _problems(401, 429, 503)
 
 

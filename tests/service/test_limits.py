@@ -117,3 +117,22 @@ def test_body_just_under_the_limit_is_read(small: Harness) -> None:
 def test_invalid_content_length_is_400(small: Harness) -> None:
     response = small.post("/v1/smooth", content=b"{}", headers={"content-type": "application/json", "content-length": "many"})
     assert response.status_code in (400, 413)
+
+
+def test_trickled_body_times_out_with_408() -> None:
+    import asyncio
+
+    h = Harness(workers=1, deadline_seconds=0.5)
+
+    async def slow() -> AsyncIterator[bytes]:
+        yield b'{"x": [1, 2, 3],'
+        await asyncio.sleep(2.0)
+        yield b' "y": [1, 2, 3]}'
+
+    try:
+        response = h.post("/v1/smooth", content=slow(), headers={"content-type": "application/json"})
+        doc = problem_ok(response, 408)
+        assert doc["type"] == "/problems/request-timeout"
+        assert h.post("/v1/smooth", json=_series(5)).status_code == 200
+    finally:
+        h.close()
