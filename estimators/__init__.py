@@ -7,6 +7,7 @@ from .bandwidth import Selection, select_bandwidth
 from .cautions import Caution
 from .kernels import KERNELS, Kernel, convert_bandwidth
 from .local_poly import Smoother, fit
+from .uncertainty import Bands
 
 __all__ = [
     "KERNELS",
