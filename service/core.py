@@ -73,8 +73,12 @@ class Service:
 
     # -------------------------------------------------------------- guards
 
-    def guard(self, request: Request) -> None:
-        """API key and per-client rate limit (router dependency for /v1)."""
+    async def guard(self, request: Request) -> None:
+        """API key and per-client rate limit (router dependency for /v1).
+
+        Async on purpose: FastAPI runs a plain function dependency in a thread,
+        and this check takes microseconds.
+        """
         self.keys.check(request)
         if self.limiter.enabled:
             client = self.keys.client_of(request) or (request.client.host if request.client else "unknown")
@@ -102,8 +106,9 @@ class Service:
         if with_body:
             check_json_content_type(request)
             try:
-                body = await asyncio.wait_for(read_body(request, self.settings.max_body_bytes), self.settings.deadline_seconds)
-            except asyncio.TimeoutError:
+                async with asyncio.timeout(self.settings.deadline_seconds):
+                    body = await read_body(request, self.settings.max_body_bytes)
+            except TimeoutError:
                 raise ProblemError("request-timeout", f"The body did not arrive within {self.settings.deadline_seconds:g} s.", headers={"Connection": "close"}) from None
         accept_gzip = cache_key is None and "gzip" in request.headers.get("accept-encoding", "").lower()
         job = Job(kind, body, request_id_of(request.scope), request.url.path, dict(params or {}), accept_gzip)

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from typing import Callable
+from typing import Any, Callable
 
 from prometheus_client import CONTENT_TYPE_LATEST, CollectorRegistry, Counter, Gauge, Histogram, generate_latest
 
@@ -17,7 +17,7 @@ class Metrics:
     ``bandwise_points_processed_total``, ``bandwise_work_in_flight``,
     ``bandwise_work_waiting``, ``bandwise_workers_ready``,
     ``bandwise_requests_shed_total{reason}``,
-    ``bandwise_worker_restarts_total{reason}``.
+    ``bandwise_worker_restarts_total{reason}`` (deadline, died, cancelled).
     """
 
     content_type = CONTENT_TYPE_LATEST
@@ -35,8 +35,22 @@ class Metrics:
         self.restarts = Counter("bandwise_worker_restarts", "Worker processes replaced, by reason (deadline, died).", ["reason"], registry=r)
         for reason in ("queue_full", "deadline", "rate_limited", "draining", "not_ready"):
             self.shed.labels(reason)
-        for reason in ("deadline", "died"):
+        for reason in ("deadline", "died", "cancelled"):
             self.restarts.labels(reason)
+        self._latency_children: dict[str, Any] = {}
+        self._request_children: dict[tuple[str, str, str], Any] = {}
+
+    def observe_request(self, route: str, method: str, status: str, seconds: float) -> None:
+        """Count one finished request (label children cached: this runs for every request)."""
+        key = (route, method, status)
+        child = self._request_children.get(key)
+        if child is None:
+            child = self._request_children[key] = self.requests.labels(route, method, status)
+        child.inc()
+        latency = self._latency_children.get(route)
+        if latency is None:
+            latency = self._latency_children[route] = self.latency.labels(route)
+        latency.observe(seconds)
 
     def bind_pool(self, busy: Callable[[], float], waiting: Callable[[], float], ready: Callable[[], float]) -> None:
         """Read the gauges from the pool at scrape time."""

@@ -28,6 +28,7 @@ from pydantic import (
 
 KERNEL_NAMES = ("gaussian", "epanechnikov", "uniform", "triangular", "biweight", "triweight", "tricube", "cosine")
 SELECTOR_NAMES = ("loocv", "gcv", "aicc", "plugin", "rule_of_thumb")
+SCORED_SELECTORS = ("loocv", "gcv", "aicc")  # selectors whose scores carry standard errors (needed by rule one_se)
 
 KernelName = Literal["gaussian", "epanechnikov", "uniform", "triangular", "biweight", "triweight", "tricube", "cosine"]
 SelectorName = Literal["loocv", "gcv", "aicc", "plugin", "rule_of_thumb"]
@@ -148,6 +149,9 @@ class _DataFields(_Strict):
             raise _FieldError("candidates", f"at most {limit} candidates are allowed, got {self.candidates}")
         if self.bandwidth_min is not None and self.bandwidth_max is not None and self.bandwidth_min >= self.bandwidth_max:
             raise _FieldError("bandwidth_max", "bandwidth_max must be greater than bandwidth_min")
+        selecting = getattr(self, "bandwidth", "auto") == "auto"
+        if selecting and self.rule == "one_se" and self.selector not in SCORED_SELECTORS:
+            raise _FieldError("rule", f"rule one_se needs a selector that scores candidates ({', '.join(SCORED_SELECTORS)}); {self.selector} computes its bandwidth from a formula")
         return self
 
 

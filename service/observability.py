@@ -15,6 +15,7 @@ from typing import Any
 
 from starlette.types import ASGIApp, Message, Receive, Scope, Send
 
+from . import logs
 from .errors import PROBLEM_MEDIA_TYPE, problem_bytes
 from .metrics import Metrics
 
@@ -117,8 +118,7 @@ class ObservabilityMiddleware:
             route = scope.get("route")
             template = getattr(route, "path", None) or "unmatched"
             method = scope.get("method", "")
-            self.metrics.requests.labels(template, method, str(status)).inc()
-            self.metrics.latency.labels(template).observe(elapsed)
+            self.metrics.observe_request(template, method, str(status), elapsed)
             if self.access:
                 fields: dict[str, Any] = {
                     "request_id": request_id,
@@ -135,4 +135,8 @@ class ObservabilityMiddleware:
                 problem = state.get("problem")
                 if problem:
                     fields["problem"] = problem
-                access_log.info("request", extra={"fields": fields})
+                sink = logs.access_sink
+                if sink is not None:
+                    sink(fields)
+                else:
+                    access_log.info("request", extra={"fields": fields})

@@ -2,17 +2,25 @@
 
 Why processes and not threads: parsing a large JSON body, validating it and
 the Python-level loops of a fit all hold the GIL for long stretches, so in a
-thread they would stall the event loop and ``/healthz`` for hundreds of
-milliseconds.  In a separate process they cannot, and a job that runs past
-its deadline can be stopped for real (the process is killed and replaced).
+thread they would stall the event loop and ``/healthz`` (see
+``tests/bench/bench_service.py`` for the measurement).  In a separate process
+they cannot, and a job that runs past its deadline can be stopped for real:
+the process is killed and replaced.
 
 The pool has ``size`` workers and a waiting room of ``queue_size`` requests.
 A request that finds both full is refused at once (503 with Retry-After)
 rather than queued without limit.  Each request has a deadline covering its
 wait and its work.
 
-Workers are forked from a forkserver that has already imported numpy and
-``estimators``, so replacing one takes milliseconds, not the import time.
+The HTTP process talks to each worker over a Unix socket pair with the
+event loop's own non-blocking I/O (no thread hop per request, so no wait for
+the GIL to change hands); the worker side uses the blocking
+:class:`multiprocessing.connection.Connection`, whose framing (a 4-byte
+big-endian length, or -1 and an 8-byte length for huge messages, then a
+pickle) this module speaks.  Workers are forked from a forkserver that has
+already imported numpy and ``estimators``, so replacing one takes
+milliseconds, not the import time.  Only starting and stopping processes
+happens in helper threads.
 """
 
 from __future__ import annotations
@@ -22,10 +30,12 @@ import collections
 import logging
 import multiprocessing
 import os
+import pickle
+import socket
+import struct
 import threading
 import time
 from concurrent.futures import ThreadPoolExecutor
-from multiprocessing.connection import Connection
 from typing import Any, Callable
 
 from .jobs import Job, Outcome
@@ -33,7 +43,9 @@ from .jobs import Job, Outcome
 log = logging.getLogger("bandwise.pool")
 
 STARTUP_TIMEOUT = 60.0
-_BLAS_THREAD_VARIABLES = ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS")
+_SMALL = struct.Struct("!i")
+_LARGE = struct.Struct("!Q")
+_STREAM_LIMIT = 1 << 20
 
 
 class PoolError(Exception):
@@ -56,54 +68,44 @@ class WorkerLost(PoolError):
     """The worker process died while working on the job."""
 
 
-class _Timeout(Exception):
-    pass
-
-
-class _Died(Exception):
-    pass
+def _frame(payload: bytes) -> bytes:
+    if len(payload) <= 0x7FFFFFFF:
+        return _SMALL.pack(len(payload))
+    return _SMALL.pack(-1) + _LARGE.pack(len(payload))
 
 
 class _Worker:
-    """One worker process and the parent's end of its pipe."""
+    """One worker process and the HTTP process's end of its socket."""
 
-    def __init__(self, process: multiprocessing.process.BaseProcess, conn: Connection) -> None:
+    def __init__(self, process: multiprocessing.process.BaseProcess, reader: asyncio.StreamReader, writer: asyncio.StreamWriter) -> None:
         self.process = process
-        self.conn = conn
+        self.reader = reader
+        self.writer = writer
+        self.killed_for: str | None = None
 
     @property
     def pid(self) -> int | None:
         return self.process.pid
 
-    def call(self, job: Job, timeout: float) -> Outcome:
-        try:
-            self.conn.send(job)
-            if not self.conn.poll(max(timeout, 0.0)):
-                raise _Timeout()
-            outcome = self.conn.recv()
-        except (EOFError, OSError) as exc:
-            raise _Died(repr(exc)) from None
+    async def roundtrip(self, job: Job) -> Outcome:
+        payload = pickle.dumps(job, protocol=pickle.HIGHEST_PROTOCOL)
+        self.writer.write(_frame(payload))
+        self.writer.write(payload)
+        await self.writer.drain()
+        (size,) = _SMALL.unpack(await self.reader.readexactly(_SMALL.size))
+        if size == -1:
+            (size,) = _LARGE.unpack(await self.reader.readexactly(_LARGE.size))
+        outcome = pickle.loads(await self.reader.readexactly(size))
         if not isinstance(outcome, Outcome):
-            raise _Died(f"unexpected message {type(outcome).__name__}")
+            raise RuntimeError(f"worker sent {type(outcome).__name__} instead of an outcome")
         return outcome
 
-    def stop(self, timeout: float = 2.0) -> None:
-        """Ask the worker to finish, then make sure it is gone."""
-        try:
-            self.conn.send(None)
-        except (OSError, ValueError):
-            pass
-        self.process.join(timeout)
-        self.kill()
-
-    def kill(self) -> None:
+    def kill(self, reason: str) -> None:
+        """Stop the process now (non-blocking) and close the socket."""
+        self.killed_for = self.killed_for or reason
         if self.process.is_alive():
             self.process.kill()
-        self.process.join(5.0)
-        try:
-            self.conn.close()
-        except OSError:
-            pass
+        self.writer.close()
 
 
 def _context() -> multiprocessing.context.BaseContext:
@@ -137,28 +139,24 @@ class WorkerPool:
         self._config = config
         self._on_event = on_event or (lambda name, label: None)
         self._ctx = _context()
-        self._threads = ThreadPoolExecutor(max_workers=2 * size + 2, thread_name_prefix="bandwise-pool")
+        self._threads = ThreadPoolExecutor(max_workers=size + 2, thread_name_prefix="bandwise-pool")
         self._idle: list[_Worker] = []
         self._all: set[_Worker] = set()
-        self._all_lock = threading.Lock()
         self._waiters: collections.deque[asyncio.Future[_Worker]] = collections.deque()
         self._loop: asyncio.AbstractEventLoop | None = None
         self._closed = False
+        self._starting = 0
+        self._lock = threading.Lock()
         self.waiting = 0
         self.busy = 0
-        self._ready_event: asyncio.Event | None = None
 
     # ------------------------------------------------------------ lifecycle
 
     async def start(self) -> None:
         """Start the workers in the background; returns at once."""
         self._loop = asyncio.get_running_loop()
-        self._ready_event = asyncio.Event()
-        for name in _BLAS_THREAD_VARIABLES:
-            # Parallelism comes from the worker count; one BLAS thread each avoids oversubscription.
-            os.environ.setdefault(name, "1")
         for _ in range(self.size):
-            self._threads.submit(self._spawn_and_add)
+            self._spawn_later()
 
     async def wait_ready(self, timeout: float = STARTUP_TIMEOUT, count: int | None = None) -> bool:
         """Wait until ``count`` workers (default: all) are ready; False on timeout."""
@@ -172,8 +170,7 @@ class WorkerPool:
 
     @property
     def ready_count(self) -> int:
-        with self._all_lock:
-            return len(self._all)
+        return len(self._all)
 
     @property
     def closed(self) -> bool:
@@ -188,82 +185,96 @@ class WorkerPool:
             fut = self._waiters.popleft()
             if not fut.done():
                 fut.set_exception(PoolClosed())
-        idle, self._idle = self._idle, []
-        with self._all_lock:
-            busy = [w for w in self._all if w not in idle]
-            self._all.clear()
+        workers, self._all, self._idle = list(self._all), set(), []
+        for w in workers:
+            w.kill("shutdown")
         loop = asyncio.get_running_loop()
-        await asyncio.gather(*(loop.run_in_executor(self._threads, w.stop) for w in idle), return_exceptions=True)
-        for w in busy:
-            await loop.run_in_executor(self._threads, w.kill)
+        await asyncio.gather(*(loop.run_in_executor(self._threads, w.process.join, 5.0) for w in workers), return_exceptions=True)
         self._threads.shutdown(wait=False, cancel_futures=True)
 
-    # ------------------------------------------------------------ spawning (threads)
+    # ------------------------------------------------------------ spawning
 
-    def _spawn(self) -> _Worker:
+    def _spawn_later(self) -> None:
+        if self._closed:
+            return
+        try:
+            self._threads.submit(self._spawn_in_thread)
+        except RuntimeError:  # executor already shut down
+            pass
+
+    def _spawn_in_thread(self) -> None:
+        """Start one process (blocking), then hand its socket to the event loop."""
+        delay = 0.5
+        while not self._closed:
+            try:
+                process, sock = self._start_process()
+                break
+            except Exception as exc:  # noqa: BLE001 - keep trying, with backoff
+                log.error("worker failed to start", extra={"fields": {"error": repr(exc)}})
+                time.sleep(delay)
+                delay = min(delay * 2, 10.0)
+        else:
+            return
+        loop = self._loop
+        try:
+            assert loop is not None
+            asyncio.run_coroutine_threadsafe(self._adopt(process, sock), loop)
+        except (RuntimeError, AssertionError):
+            process.kill()
+            sock.close()
+
+    def _start_process(self) -> tuple[multiprocessing.process.BaseProcess, socket.socket]:
         parent, child = self._ctx.Pipe(duplex=True)
         from .worker import worker_main
 
         process = self._ctx.Process(target=worker_main, args=(child, self._config), name="bandwise-worker", daemon=True)
         process.start()
         child.close()
-        worker = _Worker(process, parent)
         if not parent.poll(STARTUP_TIMEOUT):
-            worker.kill()
+            process.kill()
+            parent.close()
             raise RuntimeError("worker did not start in time")
         message = parent.recv()
         if not (isinstance(message, tuple) and message and message[0] == "ready"):
-            worker.kill()
+            process.kill()
+            parent.close()
             raise RuntimeError(f"worker sent {message!r} instead of ready")
-        return worker
+        sock = socket.socket(fileno=os.dup(parent.fileno()))
+        parent.close()
+        sock.setblocking(False)
+        return process, sock
 
-    def _spawn_and_add(self) -> None:
-        delay = 0.5
-        while not self._closed:
-            try:
-                worker = self._spawn()
-            except Exception as exc:  # noqa: BLE001 - keep trying, with backoff
-                log.error("worker failed to start", extra={"fields": {"error": repr(exc)}})
-                time.sleep(delay)
-                delay = min(delay * 2, 10.0)
-                continue
-            if self._closed or self._loop is None:
-                worker.kill()
-                return
-            with self._all_lock:
-                self._all.add(worker)
-            try:
-                self._loop.call_soon_threadsafe(self._release, worker)
-            except RuntimeError:  # loop already closed
-                worker.kill()
+    async def _adopt(self, process: multiprocessing.process.BaseProcess, sock: socket.socket) -> None:
+        reader, writer = await asyncio.open_unix_connection(sock=sock, limit=_STREAM_LIMIT)
+        worker = _Worker(process, reader, writer)
+        if self._closed:
+            worker.kill("shutdown")
             return
+        self._all.add(worker)
+        self._release(worker)
 
     def _replace(self, worker: _Worker, reason: str) -> None:
-        worker.kill()
-        with self._all_lock:
-            self._all.discard(worker)
-        self._on_event("restart", reason)
-        log.warning("worker replaced", extra={"fields": {"pid": worker.pid, "reason": reason}})
-        if not self._closed:
-            try:
-                self._threads.submit(self._spawn_and_add)
-            except RuntimeError:
-                pass
+        worker.kill(reason)
+        self._all.discard(worker)
+        self._on_event("restart", worker.killed_for or reason)
+        log.warning("worker replaced", extra={"fields": {"pid": worker.pid, "reason": worker.killed_for or reason}})
+        try:
+            self._threads.submit(worker.process.join, 5.0)
+        except RuntimeError:
+            pass
+        self._spawn_later()
 
     # ------------------------------------------------------------ running
 
     def _release(self, worker: _Worker) -> None:
+        if self._closed:
+            worker.kill("shutdown")
+            return
         while self._waiters:
             fut = self._waiters.popleft()
             if not fut.done():
                 fut.set_result(worker)
                 return
-        if self._closed:
-            try:
-                self._threads.submit(worker.stop)
-            except RuntimeError:
-                worker.kill()
-            return
         self._idle.append(worker)
 
     async def _acquire(self, timeout: float) -> _Worker:
@@ -274,8 +285,9 @@ class WorkerPool:
         self._waiters.append(fut)
         self.waiting += 1
         try:
-            await asyncio.wait_for(asyncio.shield(fut), timeout)
-        except asyncio.TimeoutError:
+            async with asyncio.timeout(timeout):
+                await asyncio.shield(fut)
+        except TimeoutError:
             if fut.done() and not fut.cancelled() and fut.exception() is None:
                 return fut.result()
             fut.cancel()
@@ -289,23 +301,6 @@ class WorkerPool:
         finally:
             self.waiting -= 1
         return fut.result()
-
-    def _execute(self, worker: _Worker, job: Job, timeout: float) -> Outcome:
-        try:
-            outcome = worker.call(job, timeout)
-        except _Timeout:
-            self._replace(worker, "deadline")
-            raise DeadlineExceeded() from None
-        except _Died as exc:
-            self._replace(worker, "died")
-            raise WorkerLost(str(exc)) from None
-        loop = self._loop
-        if loop is not None:
-            try:
-                loop.call_soon_threadsafe(self._release, worker)
-            except RuntimeError:
-                worker.kill()
-        return outcome
 
     async def run(self, job: Job, timeout: float) -> Outcome:
         """Run ``job`` in a worker within ``timeout`` seconds.
@@ -328,9 +323,25 @@ class WorkerPool:
             raise Overloaded()
         started = time.monotonic()
         worker = await self._acquire(timeout)
-        remaining = timeout - (time.monotonic() - started)
+        remaining = max(timeout - (time.monotonic() - started), 0.0)
         self.busy += 1
         try:
-            return await self._loop.run_in_executor(self._threads, self._execute, worker, job, remaining)
+            async with asyncio.timeout(remaining):
+                outcome = await worker.roundtrip(job)
+        except TimeoutError:
+            self._replace(worker, "deadline")
+            raise DeadlineExceeded() from None
+        except asyncio.CancelledError:
+            # Cancelled mid-conversation: the worker's answer would arrive out of
+            # step with the next job, so this worker is replaced.
+            self._replace(worker, "cancelled")
+            raise
+        except (OSError, EOFError, asyncio.IncompleteReadError, RuntimeError, pickle.UnpicklingError) as exc:
+            self._replace(worker, "died")
+            if self._closed:
+                raise PoolClosed() from None
+            raise WorkerLost(repr(exc)) from None
         finally:
             self.busy -= 1
+        self._release(worker)
+        return outcome

@@ -5,7 +5,7 @@ from __future__ import annotations
 from typing import Any
 
 import orjson
-from fastapi import APIRouter, Depends, FastAPI, Request
+from fastapi import APIRouter, FastAPI, Request
 from fastapi.responses import FileResponse, HTMLResponse, PlainTextResponse, Response
 
 from .core import Service
@@ -49,31 +49,37 @@ def _json(data: Any, status: int = 200, headers: dict[str, str] | None = None) -
 
 
 def api_router(service: Service) -> APIRouter:
-    """The /v1 routes (API key and rate limit apply)."""
-    router = APIRouter(prefix="/v1", dependencies=[Depends(service.guard)])
+    """The /v1 routes; each first checks the API key and the rate limit (``service.guard``)."""
+    router = APIRouter(prefix="/v1")
 
     @router.post("/smooth", summary="Smooth one series", description=SMOOTH_DESCRIPTION, response_model=None, responses={200: {"model": SmoothResponse, "description": "The fit."}, **POST_PROBLEMS}, tags=["smoothing"])
     async def smooth(request: Request) -> Response:
+        await service.guard(request)
         return await service.submit(request, "smooth")
 
     @router.post("/smooth/batch", summary="Smooth many series", description=BATCH_DESCRIPTION, response_model=None, responses={200: {"model": BatchResponse, "description": "One slot per series."}, **POST_PROBLEMS}, tags=["smoothing"])
     async def smooth_batch(request: Request) -> Response:
+        await service.guard(request)
         return await service.submit(request, "batch")
 
     @router.post("/bandwidth", summary="Select a bandwidth", description=BANDWIDTH_DESCRIPTION, response_model=None, responses={200: {"model": BandwidthResponse, "description": "The chosen bandwidth with every candidate's score."}, **POST_PROBLEMS}, tags=["smoothing"])
     async def bandwidth(request: Request) -> Response:
+        await service.guard(request)
         return await service.submit(request, "bandwidth")
 
     @router.get("/kernels", summary="Kernels and their constants", response_model=None, responses={200: {"model": KernelsResponse, "description": "All kernels."}, **GET_PROBLEMS}, tags=["reference"])
     async def kernels(request: Request) -> Response:
+        await service.guard(request)
         return await service.submit(request, "kernels", with_body=False)
 
     @router.get("/demo", summary="List the demo series", response_model=None, responses={200: {"model": DemoList, "description": "The demo series (invented Harbour Street scenario)."}, **GET_PROBLEMS}, tags=["demo"])
     async def demo_list(request: Request) -> Response:
+        await service.guard(request)
         return await service.submit(request, "demo_list", with_body=False)
 
     @router.get("/demo/{name}", summary="One demo series", response_model=None, responses={200: {"model": DemoData, "description": "Data, labels and units."}, **_problems(401, 404, 429, 503)}, tags=["demo"])
     async def demo(request: Request, name: str) -> Response:
+        await service.guard(request)
         return await service.submit(request, "demo", params={"name": name}, with_body=False)
 
     return router

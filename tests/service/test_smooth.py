@@ -18,7 +18,7 @@ import pytest
 
 import estimators
 from estimators.demo import cold_store, parcel_depot
-from service.models import KERNEL_NAMES, SmoothResponse
+from service.models import KERNEL_NAMES, SCORED_SELECTORS, SmoothResponse
 
 from .conftest import Harness
 
@@ -92,10 +92,24 @@ def test_every_kernel_and_degree(api: Harness, kernel: str, degree: int) -> None
 @pytest.mark.parametrize("selector", ["loocv", "gcv", "aicc", "plugin", "rule_of_thumb"])
 @pytest.mark.parametrize("rule", ["min", "one_se"])
 def test_selectors_and_rules(api: Harness, selector: str, rule: str) -> None:
+    if rule == "one_se" and selector not in SCORED_SELECTORS:
+        response = api.post("/v1/smooth", json={"x": X, "y": Y, "selector": selector, "rule": rule})
+        assert response.status_code == 422
+        assert [e["field"] for e in response.json()["errors"]] == ["rule"]
+        return
     doc = _smooth(api, selector=selector, rule=rule, candidates=12, curve={"points": 10})
     ref = estimators.select_bandwidth(np.array(X), np.array(Y), selector=selector, rule=rule, candidates=12)
     assert doc["bandwidth"]["selector"] == selector and doc["bandwidth"]["rule"] == rule
     assert math.isclose(doc["bandwidth"]["value"], ref.chosen, rel_tol=1e-12)
+
+
+def test_scored_selectors_match_estimators() -> None:
+    from estimators.bandwidth import SCORED_SELECTORS as NUMERICS_SCORED, SELECTORS
+
+    assert tuple(SCORED_SELECTORS) == tuple(NUMERICS_SCORED)
+    from service.models import SELECTOR_NAMES
+
+    assert tuple(SELECTOR_NAMES) == tuple(SELECTORS)
 
 
 def test_candidate_range(api: Harness) -> None:
