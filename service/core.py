@@ -74,11 +74,7 @@ class Service:
     # -------------------------------------------------------------- guards
 
     async def guard(self, request: Request) -> None:
-        """API key and per-client rate limit (router dependency for /v1).
-
-        Async on purpose: FastAPI runs a plain function dependency in a thread,
-        and this check takes microseconds.
-        """
+        """API key and per-client rate limit; every /v1 route awaits it first."""
         self.keys.check(request)
         if self.limiter.enabled:
             client = self.keys.client_of(request) or (request.client.host if request.client else "unknown")
