@@ -83,3 +83,25 @@ def test_worker_that_dies_is_replaced(tight: Harness) -> None:
     assert doc["request_id"] == "lost-1"
     assert tight.run(pool.wait_ready(30.0))
     assert tight.post("/v1/smooth", json=SMALL).status_code == 200
+
+
+def test_cancelled_request_does_not_leak_its_worker(tight: Harness, heavy_body: bytes) -> None:
+    pool = tight.service.pool
+    assert tight.run(pool.wait_ready(30.0))
+    before = tight.get("/metrics").text
+    job = tight.run(_start_heavy(tight, heavy_body))
+    _wait_for(lambda: pool.busy == 1)
+    tight.loop.call_soon_threadsafe(job.cancel)
+    _wait_for(lambda: pool.busy == 0)
+    # The worker was in the middle of a job: it is replaced, never handed out again half-way.
+    assert tight.run(pool.wait_ready(30.0))
+    assert tight.post("/v1/smooth", json=SMALL).status_code == 200
+    after = tight.get("/metrics").text
+    assert 'bandwise_worker_restarts_total{reason="cancelled"} 1.0' in after
+    assert 'bandwise_worker_restarts_total{reason="cancelled"} 1.0' not in before
+
+
+async def _start_heavy(h: Harness, body: bytes):  # type: ignore[no-untyped-def]
+    import asyncio
+
+    return asyncio.ensure_future(h.client.post("/v1/smooth", content=body, headers={"content-type": "application/json"}))
