@@ -1,9 +1,9 @@
 """Regression tests for defects the schema fuzzer found (``known_bugs.py``).
 
-Each defect still open is marked ``xfail(strict=True)``: the suite stays green
+A defect still open is marked ``xfail(strict=True)``: the suite stays green
 while it is open, and the fix makes the test pass, which strict xfail reports
 as a failure, so the marker (and the entry in ``known_bugs.py``) must go with
-the fix. The expectations come from DESIGN.md: "never a 500 for anything a
+the fix. Fixed defects keep their test, unmarked. The expectations come from DESIGN.md: "never a 500 for anything a
 client sent", undefined numbers are null only where the response schema
 allows null, and the OpenAPI document describes the answers.
 """
@@ -17,8 +17,6 @@ from typing import Any
 import pytest
 
 from tests.service.conftest import Harness
-
-from .known_bugs import grid_size_overflow, x_span_overflows
 
 TWELVE_X = [float(i) for i in range(12)]
 TWELVE_Y = [0.0, 1.0, 2.0] * 4
@@ -46,10 +44,9 @@ GRID_OVERFLOW_CASES = [
 ]
 
 
-@pytest.mark.xfail(strict=True, reason="GRID-OVERFLOW: engine choice computes int(inf) in binned_grid_size for the gaussian kernel; answered 500")
 @pytest.mark.parametrize(("path", "body"), GRID_OVERFLOW_CASES)
 def test_gaussian_fit_with_extreme_bandwidth_or_span_is_not_a_server_error(api: Harness, path: str, body: dict[str, Any]) -> None:
-    assert grid_size_overflow(body), "the fuzz classifier must recognise this reproduction"
+    """GRID-OVERFLOW (fixed): the engine choice computed int(inf) in binned_grid_size for the gaussian kernel, answered 500."""
     response = api.post(path, json=body)
     _not_server_error(response)
 
@@ -60,11 +57,11 @@ def test_extreme_values_with_a_compact_kernel_and_exact_engine_are_answered(api:
     _not_server_error(response)
 
 
-@pytest.mark.xfail(strict=True, reason="SPAN-OVERFLOW: max(x) - min(x) overflows; 200 with curve.x all null, which CurveOut does not allow")
-@pytest.mark.parametrize("kernel", ["triangular", "epanechnikov"])
+@pytest.mark.parametrize("kernel", ["triangular", "epanechnikov", "gaussian"])
 def test_overflowing_x_span_is_refused_or_gives_a_finite_curve(api: Harness, kernel: str) -> None:
+    """SPAN-OVERFLOW (fixed): with max(x) - min(x) beyond the float range the answer was 200 with curve.x all null."""
     body = {"x": [-1e308, 0.0, 1e308], "y": [0.0, 1.0, 2.0], "kernel": kernel, "bandwidth": 1.0}
-    assert x_span_overflows(body)
+    assert not math.isfinite(max(body["x"]) - min(body["x"]))
     response = api.post("/v1/smooth", json=body)
     _not_server_error(response)
     if response.status_code == 200:
