@@ -48,7 +48,7 @@ The data are sorted once (:class:`estimators.local_poly.SortedSample`). From
 1000 points on (for the gaussian kernel from the start), ``gcv``, ``aicc`` and
 ``loocv`` score the candidates on linearly binned data (:class:`_BinnedScorer`):
 the data are binned once, ``O(n)``, and each candidate then costs
-``O(M log M)`` on a grid of ``4097 <= M <= 2**18 + 1`` nodes with at least 16
+``O(M log M)`` on a grid of ``2049 <= M <= 2**18 + 1`` nodes with at least 16
 nodes per bandwidth. Measured against the exact sums
 (``tests/estimators/test_bandwidth.py``): relative score errors below ``3e-3``
 at the smallest candidates (windows of two or three points), below ``1e-4``
@@ -140,7 +140,7 @@ WELL_POSED_MARGIN = 1.25
 #: binned scoring: nodes per bandwidth at which scores are trusted as they are
 BINNED_NODES_PER_BANDWIDTH = 16
 #: binned scoring: fewest nodes in any grid (bounds the linear-interpolation error at large bandwidths)
-BINNED_MIN_NODES = 4097
+BINNED_MIN_NODES = 2049
 #: binned scoring: most nodes in the finest grid
 BINNED_MAX_NODES = 2**18 + 1
 #: binned scoring: sample size from which it is used for compact kernels
@@ -621,9 +621,10 @@ class _BinnedScorer:
         filt[0] = kv
         for k in range(1, 2 * p + 1):
             filt[k] = filt[k - 1] * lags
-        # one transform length per grid (the widest window it serves), so the data spectra are reused
+        # one transform length per grid (the widest window it serves), so the data spectra are reused;
+        # a circular convolution of length >= m + reach leaves the outputs reach .. reach + m - 1 unaliased
         widest = m - 1 if ell == self.top else min(m - 1, int(math.ceil(self.radius * 2 * BINNED_NODES_PER_BANDWIDTH)) + 1)
-        length = sfft.next_fast_len(m + 2 * max(widest, reach), real=True)
+        length = sfft.next_fast_len(m + max(widest, reach), real=True)
         spec_f = sfft.rfft(filt, length, axis=1)
         spec_d = lev.spectra(length)
         prods = np.concatenate([spec_d[0][None, :] * spec_f, spec_d[1][None, :] * spec_f[: p + 1]])
@@ -632,9 +633,15 @@ class _BinnedScorer:
         sign = np.array([(-1.0) ** k for k in range(2 * p + 1)] + [(-1.0) ** k for k in range(p + 1)])
         conv *= sign[:, None]
         fitted, h00 = _grid_solve(conv[: 2 * p + 1], conv[2 * p + 1 :], p)
-        rss_raw = self.wyy - 2.0 * (lev.d @ fitted) + lev.a @ (fitted * fitted) + 2.0 * (lev.b @ (fitted[:-1] * fitted[1:]))
-        rss = max(rss_raw, 0.0) * self.groups.scale
-        df = self.k0 * float(lev.c @ h00)
+        # einsum, not BLAS: threaded BLAS dot products only add contention at these sizes
+        rss_raw = (
+            self.wyy
+            - 2.0 * np.einsum("i,i->", lev.d, fitted)
+            + np.einsum("i,i,i->", lev.a, fitted, fitted)
+            + 2.0 * np.einsum("i,i,i->", lev.b, fitted[:-1], fitted[1:])
+        )
+        rss = max(float(rss_raw), 0.0) * self.groups.scale
+        df = self.k0 * float(np.einsum("i,i->", lev.c, h00))
         pos = self.group_pos / 2**ell
 
         def at_groups(idx: np.ndarray | None) -> tuple[np.ndarray, np.ndarray]:
@@ -1151,7 +1158,7 @@ def _flat_caution(
       bandwidth ratio of :data:`FLAT_BANDWIDTH_RATIO` or more.
     """
     last = grid.size - 1
-    while last > best and last not in fits:
+    while last > best and not (last in fits and np.isfinite(scores[last])):
         last -= 1
     if last == best or scores[last] - scores[best] <= _paired_se(selector, fits[last], fits[best], groups):
         return Caution(

@@ -162,6 +162,12 @@ def table(results: dict[str, dict[str, np.ndarray]], selectors: Sequence[str] = 
             mark = "" if target is None else (" ok" if med <= target else " MISS")
             cells.append(f"{med:.3f} ({q1:.2f}-{q3:.2f}){mark}")
         lines.append(f"| {name} | " + " | ".join(cells) + " |")
+    pooled = []
+    for s in selectors:
+        values = np.concatenate([res[s] for res in results.values()])
+        q1, med, q3 = np.quantile(values, [0.25, 0.5, 0.75])
+        pooled.append(f"{med:.3f} ({q1:.2f}-{q3:.2f})")
+    lines.append("| all curves | " + " | ".join(pooled) + " |")
     return "\n".join(lines)
 
 
