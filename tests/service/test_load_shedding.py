@@ -33,6 +33,13 @@ def heavy_body() -> bytes:
     return orjson.dumps({"x": x, "y": y, "bandwidth": 50.0, "engine": "exact", "bands": {"replicates": 5000}})
 
 
+def _value(metrics: str, name: str) -> float:
+    for line in metrics.splitlines():
+        if line.startswith(name + " "):
+            return float(line.rsplit(" ", 1)[1])
+    raise AssertionError(f"{name} not in metrics")
+
+
 def _wait_for(predicate, limit: float = 30.0) -> None:  # type: ignore[no-untyped-def]
     stop = time.monotonic() + limit
     while not predicate():
@@ -67,9 +74,10 @@ def test_queue_full_is_refused_at_once_and_deadline_stops_the_work(tight: Harnes
     assert tight.run(pool.wait_ready(30.0))
     assert tight.post("/v1/smooth", json=SMALL).status_code == 200
     metrics = tight.get("/metrics").text
-    assert 'bandwise_worker_restarts_total{reason="deadline"} 1.0' in metrics
-    assert 'bandwise_requests_shed_total{reason="queue_full"} 1.0' in metrics
-    assert 'bandwise_requests_shed_total{reason="deadline"}' in metrics
+    # The heavy job was stopped; the queued one may have run out of time too.
+    assert _value(metrics, 'bandwise_worker_restarts_total{reason="deadline"}') >= 1
+    assert _value(metrics, 'bandwise_requests_shed_total{reason="queue_full"}') == 1
+    assert _value(metrics, 'bandwise_requests_shed_total{reason="deadline"}') >= 1
 
 
 def test_worker_that_dies_is_replaced(tight: Harness) -> None:
@@ -97,8 +105,8 @@ def test_cancelled_request_does_not_leak_its_worker(tight: Harness, heavy_body: 
     assert tight.run(pool.wait_ready(30.0))
     assert tight.post("/v1/smooth", json=SMALL).status_code == 200
     after = tight.get("/metrics").text
-    assert 'bandwise_worker_restarts_total{reason="cancelled"} 1.0' in after
-    assert 'bandwise_worker_restarts_total{reason="cancelled"} 1.0' not in before
+    name = 'bandwise_worker_restarts_total{reason="cancelled"}'
+    assert _value(after, name) == _value(before, name) + 1
 
 
 async def _start_heavy(h: Harness, body: bytes):  # type: ignore[no-untyped-def]
