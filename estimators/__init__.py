@@ -1,6 +1,6 @@
 """Bandwise numerics: kernel smoothing, bandwidth selection and uncertainty.
 
-Pure numpy/scipy; no web, no I/O.
+Pure numerics (numpy, scipy, compiled numba loops); no web, no I/O.
 """
 
 from .bandwidth import Selection, select_bandwidth
@@ -11,6 +11,7 @@ from .uncertainty import Bands
 
 __all__ = [
     "KERNELS",
+    "Bands",
     "Caution",
     "Kernel",
     "Selection",

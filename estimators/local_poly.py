@@ -484,11 +484,19 @@ class Smoother:
         replicates: int = 500,
         seed: int | None = 0,
         simultaneous: bool = False,
+        **options: Any,
     ) -> "Bands":
-        """Confidence bands for the curve; pointwise unless ``simultaneous``."""
+        """Confidence bands for the curve; pointwise unless ``simultaneous``.
+
+        Further keyword options (``multiplier``, ``bias_correction``, ``engine``)
+        pass through to :func:`estimators.uncertainty.bands`.
+        """
         from .uncertainty import bands
 
-        return bands(self, points, level=level, method=method, replicates=replicates, seed=seed, simultaneous=simultaneous)
+        return bands(
+            self, points, level=level, method=method, replicates=replicates, seed=seed, simultaneous=simultaneous,
+            **options,
+        )
 
     def prediction_interval(self, points: Any, level: float = 0.95) -> tuple[np.ndarray, np.ndarray]:
         """Interval for a new observation at ``points`` (curve uncertainty plus noise)."""

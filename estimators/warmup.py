@@ -25,6 +25,21 @@ def warm() -> float:
             s.fitted()
             s.predict(np.linspace(0, 10, 7))
             s.moments(np.linspace(0, 10, 7), np.ones((x.size, 3)), 4, power=2)
+    grid = np.linspace(0.5, 9.5, 9)
+    for kernel in ("gaussian", "epanechnikov"):
+        s = fit(x, y, kernel=kernel, bandwidth=1.0)
+        for method, options in (
+            ("wild_bootstrap", {}),
+            ("wild_bootstrap", {"multiplier": "mammen"}),
+            ("wild_bootstrap", {"simultaneous": True}),
+            ("residual_bootstrap", {}),
+            ("wild_bootstrap", {"engine": "binned"}),
+        ):
+            try:
+                s.bands(grid, method=method, replicates=40, seed=0, **options)
+            except (TypeError, ValueError):  # an option a kernel does not take
+                pass
+        s.prediction_interval(grid)
     return time.perf_counter() - start
 
 
