@@ -46,6 +46,7 @@ STARTUP_TIMEOUT = 60.0
 _SMALL = struct.Struct("!i")
 _LARGE = struct.Struct("!Q")
 _STREAM_LIMIT = 1 << 20
+_BLAS_THREAD_VARIABLES = ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS")
 
 
 class PoolError(Exception):
@@ -155,6 +156,10 @@ class WorkerPool:
     async def start(self) -> None:
         """Start the workers in the background; returns at once."""
         self._loop = asyncio.get_running_loop()
+        for name in _BLAS_THREAD_VARIABLES:
+            # Parallelism comes from the worker count; one BLAS thread per worker avoids
+            # oversubscribing the cores.  Read when the forkserver starts, inherited by every worker.
+            os.environ.setdefault(name, "1")
         for _ in range(self.size):
             self._spawn_later()
 
