@@ -282,9 +282,19 @@ class WorkerPool:
                 return
         self._idle.append(worker)
 
+    def _pop_idle(self) -> _Worker | None:
+        """An idle worker that is still alive; dead ones (killed while idle) are replaced on the way."""
+        while self._idle:
+            worker = self._idle.pop()
+            if worker.process.is_alive():
+                return worker
+            self._replace(worker, "died")
+        return None
+
     async def _acquire(self, timeout: float) -> _Worker:
-        if self._idle:
-            return self._idle.pop()
+        worker = self._pop_idle()
+        if worker is not None:
+            return worker
         assert self._loop is not None
         fut: asyncio.Future[_Worker] = self._loop.create_future()
         self._waiters.append(fut)

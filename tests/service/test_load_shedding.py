@@ -80,15 +80,32 @@ def test_queue_full_is_refused_at_once_and_deadline_stops_the_work(tight: Harnes
     assert _value(metrics, 'bandwise_requests_shed_total{reason="deadline"}') >= 1
 
 
-def test_worker_that_dies_is_replaced(tight: Harness) -> None:
+def test_worker_that_dies_while_idle_is_replaced_before_use(tight: Harness) -> None:
     pool = tight.service.pool
     assert tight.run(pool.wait_ready(30.0))
+    before = _value(tight.get("/metrics").text, 'bandwise_worker_restarts_total{reason="died"}')
     victim = pool._idle[0]
     victim.process.kill()
     victim.process.join(5)
-    response = tight.post("/v1/smooth", json=SMALL, headers={"x-request-id": "lost-1"})
+    # The request waits for the replacement instead of failing on the dead worker.
+    assert tight.post("/v1/smooth", json=SMALL).status_code == 200
+    after = _value(tight.get("/metrics").text, 'bandwise_worker_restarts_total{reason="died"}')
+    assert after == before + 1
+
+
+def test_worker_that_dies_during_a_job_gives_a_500_with_the_request_id(tight: Harness) -> None:
+    import threading
+
+    pool = tight.service.pool
+    assert tight.run(pool.wait_ready(30.0))
+    victim = pool._idle[0]
+    body = {"x": [float(i) for i in range(200_000)], "y": [float(i % 7) for i in range(200_000)], "bandwidth": 30.0, "bands": {"replicates": 5000}}
+    pending = tight.submit("POST", "/v1/smooth", json=body, headers={"x-request-id": "lost-1"})
+    _wait_for(lambda: pool.busy == 1)
+    threading.Timer(0.05, victim.process.kill).start()
+    response = pending.result(60)
     doc = problem_ok(response, 500)
-    assert doc["request_id"] == "lost-1"
+    assert doc["request_id"] == "lost-1" and doc["type"] == "/problems/internal-error"
     assert tight.run(pool.wait_ready(30.0))
     assert tight.post("/v1/smooth", json=SMALL).status_code == 200
 
