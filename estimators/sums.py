@@ -355,10 +355,6 @@ class _GaussSources:
         ttiles, inverse = np.unique(tgt_tile_all, return_inverse=True)
         reach = int(math.ceil(GAUSSIAN_CUTOFF)) + 1
         local = np.zeros((ttiles.size, self.ncol, N))
-        # L_k = sum_j A[k, j] M_j with A[k, j] = (-1)^k f^(j+k)(D) / k!, truncated to j + k < N
-        jk = np.add.outer(np.arange(N), np.arange(N))
-        mask = jk < N
-        sign_k = (-1.0) ** np.arange(N)
         tiles = self.tiles
         for off in range(-reach, reach + 1):
             want = ttiles + off
@@ -367,9 +363,7 @@ class _GaussSources:
             hit = tiles[pos_c] == want
             if not hit.any():
                 continue
-            hf = _hermite_functions(np.array(float(off)), 2 * N)
-            amat = hf[jk] * (sign_k / fact[:N])[:, None]  # [k, j]; M already holds 1/j!
-            amat = np.where(mask, amat, 0.0)
+            amat = _TRANSLATIONS[off + reach]
             src = self.moments[pos_c[hit]]  # (hits, ncol, N_j)
             local[hit] += np.einsum("kj,scj->sck", amat, src)
 
@@ -385,6 +379,29 @@ class _GaussSources:
                 scale = fact[k:N] / fact[: N - k]
                 out[sl, :, k] = np.einsum("mcn,mn->mc", coeffs[:, :, k:] * scale, wp[:, : N - k])
         return out
+
+
+def _translation_matrices() -> np.ndarray:
+    """``A[k, j] = (-1)^k f^(j+k)(D) / k!`` (``j + k < N``) for every tile offset ``D``.
+
+    The local coefficients of a target tile are ``L_k = sum_j A[k, j] M_j`` summed
+    over the source tiles at offset ``D``; the tile moments ``M`` already hold ``1/j!``.
+    A constant table, built once at import.
+    """
+    n = N_TERMS
+    reach = int(math.ceil(GAUSSIAN_CUTOFF)) + 1
+    jk = np.add.outer(np.arange(n), np.arange(n))
+    fact = np.array([math.factorial(j) for j in range(n)], dtype=float)
+    sign_k = (-1.0) ** np.arange(n)
+    out = np.empty((2 * reach + 1, n, n))
+    for i, off in enumerate(range(-reach, reach + 1)):
+        hf = _hermite_functions(np.array(float(off)), 2 * n)
+        out[i] = np.where(jk < n, hf[jk] * (sign_k / fact)[:, None], 0.0)
+    out.setflags(write=False)
+    return out
+
+
+_TRANSLATIONS = _translation_matrices()
 
 
 def _hermite_to_power(order: int) -> np.ndarray:
