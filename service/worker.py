@@ -17,6 +17,33 @@ from typing import Any
 from .jobs import Job
 
 
+_M_TRIM_THRESHOLD = -1
+_M_MMAP_THRESHOLD = -3
+_MMAP_THRESHOLD = 64 * 1024 * 1024
+_TRIM_THRESHOLD = 256 * 1024 * 1024
+
+
+def tune_allocator() -> bool:
+    """Keep freed array memory for reuse instead of unmapping it after every request (glibc only).
+
+    By default glibc hands large blocks (an array of 100,000 doubles is one) to
+    ``mmap`` and returns them on ``free``, so every request pays page faults to
+    get zeroed pages again: about a fifth of the time of a 1e5-point fit.  With
+    blocks up to 64 MiB served from the heap and the heap trimmed only beyond
+    256 MiB of free space, a worker reuses its memory from one request to the
+    next.  Returns False where ``mallopt`` is not available.
+    """
+    try:
+        import ctypes
+
+        libc = ctypes.CDLL("libc.so.6")
+        ok = libc.mallopt(_M_MMAP_THRESHOLD, _MMAP_THRESHOLD) == 1
+        ok = libc.mallopt(_M_TRIM_THRESHOLD, _TRIM_THRESHOLD) == 1 and ok
+        return ok
+    except (OSError, AttributeError):
+        return False
+
+
 def worker_main(conn: Connection, config: dict[str, Any]) -> None:
     """Serve jobs on ``conn`` until it closes or a ``None`` message arrives.
 
@@ -30,6 +57,7 @@ def worker_main(conn: Connection, config: dict[str, Any]) -> None:
     # Ctrl+C in a terminal reaches the whole process group; the HTTP process
     # decides when workers stop (it drains first), so ignore SIGINT here.
     signal.signal(signal.SIGINT, signal.SIG_IGN)
+    tune_allocator()
     from . import handlers
     from .logs import configure_logging
 

@@ -289,7 +289,7 @@ def bench_overhead(service: Proc, repeat: int) -> list[tuple[str, float, float, 
     return rows
 
 
-def bench_small(service: Proc, total: int, connections: int, kernel: str) -> tuple[float, float, float, int]:
+def bench_small(service: Proc, total: int, connections: int, kernel: str) -> tuple[float, float, float, int, dict[str, float]]:
     x, y = _data(500, seed=1)
     body = orjson.dumps({"x": x, "y": y, "bandwidth": 1.5, "kernel": kernel}, option=orjson.OPT_SERIALIZE_NUMPY)
     request = _post("/v1/smooth", body)
@@ -303,13 +303,39 @@ def bench_small(service: Proc, total: int, connections: int, kernel: str) -> tup
         asyncio.run(_throughput(bare.port, request, 200, connections))  # warm
         asyncio.run(_throughput(service.port, request, 200, connections))
         ours, theirs = [], []
+        cpu = {"bare": 0.0, "http": 0.0, "workers": 0.0}
         for _ in range(3):  # interleaved, best of three each
+            c0 = _cpu_seconds(bare.p.pid, children=False)
             theirs.append(asyncio.run(_throughput(bare.port, request, total, connections)))
+            cpu["bare"] += _cpu_seconds(bare.p.pid, children=False) - c0
+            h0, w0 = _cpu_seconds(service.p.pid, children=False), _cpu_seconds(service.p.pid, children=True)
             ours.append(asyncio.run(_throughput(service.port, request, total, connections)))
+            cpu["http"] += _cpu_seconds(service.p.pid, children=False) - h0
+            cpu["workers"] += _cpu_seconds(service.p.pid, children=True) - w0
     finally:
         bare.stop()
         os.unlink(path)
-    return max(ours), max(theirs), max(ours) / max(theirs), len(response)
+    per_request = {k: v / (3 * (total // connections) * connections) * 1000.0 for k, v in cpu.items()}
+    return max(ours), max(theirs), max(ours) / max(theirs), len(response), per_request
+
+
+def _cpu_seconds(pid: int, children: bool) -> float:
+    """CPU time (user + system) of a process, or of all its descendants (the worker processes)."""
+    import psutil
+
+    try:
+        proc = psutil.Process(pid)
+        procs = proc.children(recursive=True) if children else [proc]
+        total = 0.0
+        for p in procs:
+            try:
+                t = p.cpu_times()
+                total += t.user + t.system
+            except psutil.NoSuchProcess:
+                pass
+        return total
+    except psutil.NoSuchProcess:
+        return 0.0
 
 
 async def _healthz_latencies(port: int, heavy: bytes, seconds: float) -> list[float]:
@@ -400,8 +426,13 @@ def main(argv: list[str] | None = None) -> dict[str, Any]:
     print()
     print("| small requests (n = 500, fixed bandwidth, 4 connections) | answer (B) | bare FastAPI endpoint (req/s) | POST /v1/smooth (req/s) | ratio (target >= 0.6) |")
     print("|---|---:|---:|---:|---:|")
-    for kernel, (ours, theirs, ratio, size) in small.items():
+    for kernel, (ours, theirs, ratio, size, _) in small.items():
         print(f"| kernel {kernel} | {size} | {theirs:.0f} | {ours:.0f} | {ratio:.2f} |")
+    print()
+    print("| CPU per small request (ms) | bare endpoint | service HTTP process | service workers (parse, validate, fit, encode) |")
+    print("|---|---:|---:|---:|")
+    for kernel, (*_, cpu) in small.items():
+        print(f"| kernel {kernel} | {cpu['bare']:.3f} | {cpu['http']:.3f} | {cpu['workers']:.3f} |")
     print()
     print("| GET /healthz latency | p50 (ms) | p99 (ms) | max (ms) | samples |")
     print("|---|---:|---:|---:|---:|")
@@ -409,7 +440,7 @@ def main(argv: list[str] | None = None) -> dict[str, Any]:
         print(f"| {label} | {p50:.1f} | {p99:.1f} | {worst:.1f} | {count} |")
     print()
     print(f"Cold start, process start to first 200 on /healthz: {', '.join(f'{c:.2f} s' for c in cold)} (target < 2 s)")
-    results.update(overhead=overhead, small={k: {"service_rps": v[0], "bare_rps": v[1], "ratio": v[2]} for k, v in small.items()}, healthz=health)
+    results.update(overhead=overhead, small={k: {"service_rps": v[0], "bare_rps": v[1], "ratio": v[2], "cpu_ms": v[4]} for k, v in small.items()}, healthz=health)
     return results
 
 
