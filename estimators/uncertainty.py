@@ -1192,9 +1192,12 @@ def bands(
 def prediction_interval(smoother: "Smoother", points: Any, level: float = 0.95) -> tuple[np.ndarray, np.ndarray]:
     """Interval that holds a new observation (unit weight) at each point with probability ``level``.
 
-    ``s.predict(t) +- z sqrt(se(t)^2 + sigma^2(t))``: the curve's sampling
-    variance plus the local noise variance (constant when the data show no
-    unequal noise; see the module notes).
+    ``m(t) +- z sqrt(se(t)^2 + sigma^2(t))``: the curve's sampling variance
+    plus the local noise variance (constant when the data show no unequal
+    noise; see the module notes). ``m`` and ``se`` are those of the
+    bias-corrected centre the bands use, so the interval for a new observation
+    always contains the band for the curve (outside the data, where the
+    corrected fit's variance grows fastest, a plain-fit interval would not).
 
     Notes
     -----
@@ -1206,10 +1209,9 @@ def prediction_interval(smoother: "Smoother", points: Any, level: float = 0.95) 
     t = _points(points)
     lev = _level(level)
     ts, perm = _sorted(t)
-    fit = _local_fit(s, ts, s.degree)
+    fit = _local_fit(s, ts, _centre_degree(s.degree))
     centre = fit.beta[:, 0] + s.sample.y_centre
     a = _coefficient_row(fit, 0, s.bandwidth)
-    res = _residuals(s)
     noise = _noise_scale(s)
     var_curve = _variance(s, ts, np.nan_to_num(a), _noise_column(s, noise))
     half = float(ndtri(0.5 + lev / 2.0)) * np.sqrt(var_curve + noise.at(ts))

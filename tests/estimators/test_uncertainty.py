@@ -383,3 +383,19 @@ def test_bands_is_exported_and_results_follow_the_callers_order() -> None:
     b_sorted = s.bands(t[order], method="analytic")
     np.testing.assert_allclose(b.lower[order], b_sorted.lower)
     np.testing.assert_allclose(s.standard_error(t)[order], s.standard_error(t[order]))
+
+
+def test_prediction_interval_contains_the_curve_band_inside_and_outside_the_data() -> None:
+    """A new observation is the curve plus noise: its interval can never be narrower than the curve's band."""
+    import numpy as np
+
+    from estimators import fit
+
+    rng = np.random.default_rng(17)
+    x = rng.uniform(0, 10, 300)
+    y = np.sin(x) + rng.normal(0, 0.3, x.size)
+    s = fit(x, y, kernel="gaussian", bandwidth=0.6)
+    t = np.array([-1.0, 0.5, 5.0, 9.5, 11.0])  # two beyond the data range
+    band = s.bands(t, level=0.95, method="analytic")
+    lower, upper = s.prediction_interval(t, level=0.95)
+    assert np.all(lower <= band.lower + 1e-12) and np.all(upper >= band.upper - 1e-12)
