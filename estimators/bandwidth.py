@@ -381,6 +381,12 @@ def candidate_grid(
                     "the candidates reach beyond half the x range",
                 )
             )
+    for name, value in (("bandwidth_min", lo_given), ("bandwidth_max", hi_given)):
+        if value is not None and not (span / value * 1e-9 < 1e12 and value < 1e6 * span):
+            raise ValueError(
+                f"{name} ({value:.6g}) is out of proportion to the x range ({span:.6g}); "
+                "choose candidates between the data spacing and the x range"
+            )
     if not lo < hi:
         if lo_given is not None and hi_given is not None:
             raise ValueError(f"bandwidth_min ({lo:.6g}) must be below bandwidth_max ({hi:.6g})")

@@ -127,7 +127,7 @@ def validate_sample(x: Any, y: Any, weights: Any = None) -> SortedSample:
     if weights is None:
         if xa.size < 2:
             raise ValueError(f"need at least 2 points, got {xa.size}")
-        return SortedSample(xa, ya, np.ones_like(xa), unit_weights=True)
+        return _check_span(SortedSample(xa, ya, np.ones_like(xa), unit_weights=True))
     else:
         wa = _as_float_array("weights", weights)
         if wa.size != xa.size:
@@ -140,7 +140,16 @@ def validate_sample(x: Any, y: Any, weights: Any = None) -> SortedSample:
         raise ValueError("weights are all zero: at least one point must carry weight")
     if np.count_nonzero(wa > 0) < 2:
         raise ValueError("need at least 2 points with positive weight")
-    return SortedSample(xa, ya, wa)
+    return _check_span(SortedSample(xa, ya, wa))
+
+
+def _check_span(sample: SortedSample) -> SortedSample:
+    with np.errstate(over="ignore"):
+        span = float(sample.xs[-1] - sample.xs[0])
+        y_span = float(np.max(sample.ys) - np.min(sample.ys))
+    if not (math.isfinite(span) and math.isfinite(y_span)):
+        raise ValueError("x or y spans more than the largest floating-point number; rescale the data")
+    return sample
 
 
 def _check_degree(degree: Any) -> int:
@@ -574,6 +583,10 @@ def fit(
         h = selection.chosen
     else:
         h = _check_bandwidth(bandwidth)
+        with np.errstate(over="ignore", divide="ignore"):
+            reach = (sample.xs[-1] - sample.xs[0]) / h
+        if not math.isfinite(float(reach)) or h > 1e300:
+            raise ValueError(f"bandwidth {h!r} is out of proportion to the x range; choose one nearer the data spacing")
     smoother = Smoother(sample, kern, deg, h, engine, selection)
     if sample.n_used < 2 * (deg + 2):
         smoother._cautions.append(

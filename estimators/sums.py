@@ -449,7 +449,10 @@ def _keys_weights(frac: np.ndarray) -> np.ndarray:
 def binned_grid_size(x_min: float, x_max: float, kernel: Kernel, bandwidth: float) -> int:
     """Number of grid points the binned path would use for this problem."""
     span = (x_max - x_min) + 2.0 * effective_radius(kernel) * bandwidth
-    return int(math.ceil(span / bandwidth * BINNED_POINTS_PER_BANDWIDTH)) + 4
+    cells = span / bandwidth * BINNED_POINTS_PER_BANDWIDTH
+    if not math.isfinite(cells) or cells > 2.0**62:
+        return 2**62  # no grid could hold it: callers fall back to the exact path
+    return int(math.ceil(cells)) + 4
 
 
 class _BinnedPlan:
