@@ -358,3 +358,11 @@ class DemoData(DemoSummary):
 
 class Health(_Out):
     status: str
+
+
+class Readiness(_Out):
+    """Body of a 200 from ``/readyz``."""
+
+    status: str = Field(description="`ready`.")
+    workers_ready: int = Field(description="Worker processes up and serving.")
+    workers: int = Field(description="Worker processes configured.")

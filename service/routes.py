@@ -18,6 +18,7 @@ from .models import (
     DemoData,
     DemoList,
     Health,
+    Readiness,
     KernelsResponse,
     Problem,
     SmoothResponse,
@@ -93,7 +94,7 @@ def ops_router(service: Service) -> APIRouter:
     async def healthz() -> Response:
         return _json({"status": "ok"})
 
-    @router.get("/readyz", summary="Readiness", response_model=None, responses={200: {"model": Health, "description": "Ready for work."}, **_problems(503)}, tags=["operations"])
+    @router.get("/readyz", summary="Readiness", response_model=None, responses={200: {"model": Readiness, "description": "Ready for work."}, **_problems(503)}, tags=["operations"])
     async def readyz(request: Request) -> Response:
         if service.draining:
             raise ProblemError("shutting-down", "This process is draining before it stops.", headers=retry_after(service.settings.retry_after_seconds))

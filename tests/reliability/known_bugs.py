@@ -9,12 +9,8 @@ failure, and the entry here must be deleted together with the marker.
 Fixed so far (their regression tests are plain tests now): GRID-OVERFLOW
 (500 from the engine choice for extreme spans or bandwidths), SPAN-OVERFLOW
 (200 with a null curve grid when ``max(x) - min(x)`` overflowed),
-FEW-POINTS-AUTO (automatic bandwidth refused on short series).
+FEW-POINTS-AUTO (automatic bandwidth refused on short series), READYZ-SCHEMA
+(``/readyz`` answered fields its documented schema forbade). None is open now.
 """
 
 from __future__ import annotations
-
-
-def readyz_extra_fields(label: str, status: int) -> bool:
-    """Known defect READYZ-SCHEMA: 200 from GET /readyz carries fields its documented schema forbids."""
-    return label == "GET /readyz" and status == 200
