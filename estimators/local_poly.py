@@ -26,8 +26,8 @@ import numpy as np
 
 from .cautions import Caution
 from .kernels import Kernel, get_kernel
-from .sums import _compiled
-from .sums import MomentPlan, binned_grid_size, moment_sums, window_bounds
+from . import _compiled
+from .sums import MomentPlan, binned_grid_size, moment_sums, window_counts
 
 if TYPE_CHECKING:  # pragma: no cover
     from .bandwidth import Selection
@@ -189,83 +189,6 @@ def choose_engine(engine: str, kernel: Kernel, sample: SortedSample, bandwidth: 
     return "exact"
 
 
-def _solve_local(smom: np.ndarray, tmom: np.ndarray, degree: int) -> tuple[np.ndarray, np.ndarray]:
-    """Solve the Hankel systems ``S beta = T`` for every point.
-
-    Parameters
-    ----------
-    smom : (m, 2*degree + 1) moments ``S_k``; tmom : (m, degree + 1) moments ``T_k``.
-
-    Returns
-    -------
-    beta : (m, degree + 1) local coefficients in units of ``h``.
-    inv : (m, degree + 1, degree + 1) the inverse matrices ``S^{-1}``.
-    """
-    m = smom.shape[0]
-    p1 = degree + 1
-    inv = np.full((m, p1, p1), np.nan)
-    if degree == 0:
-        inv[:, 0, 0] = 1.0 / smom[:, 0]
-    elif degree == 1:
-        a, b, c = smom[:, 0], smom[:, 1], smom[:, 2]
-        det = a * c - b * b
-        inv[:, 0, 0] = c / det
-        inv[:, 0, 1] = inv[:, 1, 0] = -b / det
-        inv[:, 1, 1] = a / det
-    else:
-        a, b, c, d, e = (smom[:, k] for k in range(5))
-        c00 = c * e - d * d
-        c01 = -(b * e - c * d)
-        c02 = b * d - c * c
-        c11 = a * e - c * c
-        c12 = -(a * d - b * c)
-        c22 = a * c - b * b
-        det = a * c00 + b * c01 + c * c02
-        for (i, j), val in {(0, 0): c00, (0, 1): c01, (0, 2): c02, (1, 1): c11, (1, 2): c12, (2, 2): c22}.items():
-            inv[:, i, j] = inv[:, j, i] = val / det
-    beta = np.einsum("mij,mj->mi", inv, tmom)
-    return beta, inv
-
-
-def _relative_det(smom: np.ndarray, degree: int) -> np.ndarray:
-    if degree == 0:
-        return np.ones(smom.shape[0])
-    if degree == 1:
-        a, b, c = smom[:, 0], smom[:, 1], smom[:, 2]
-        with np.errstate(divide="ignore", invalid="ignore"):
-            return (a * c - b * b) / (a * c)
-    a, b, c, d, e = (smom[:, k] for k in range(5))
-    det = a * (c * e - d * d) - b * (b * e - c * d) + c * (b * d - c * c)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        return det / (a * c * e)
-
-
-def _solve_block(
-    mom: np.ndarray, lo: np.ndarray, hi: np.ndarray, prefix: np.ndarray, p: int
-) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Numpy reference for :func:`estimators._compiled.solve_local`."""
-    m = mom.shape[0]
-    smom, tmom = mom[:, 0, :], mom[:, 1, : p + 1]
-    deg = np.full(m, -1, dtype=np.int64)
-    has = (hi > lo) & (smom[:, 0] > 0)
-    deg[has] = np.minimum(prefix[hi[has]] - prefix[lo[has] + 1], p)
-    for d in range(p, 0, -1):
-        at = deg == d
-        if at.any():
-            weak = at.copy()
-            weak[at] = ~(np.abs(_relative_det(smom[at], d)) > _SINGULAR)
-            deg[weak] = d - 1
-    beta = np.full((m, p + 1), np.nan)
-    inv = np.zeros((m, p + 1, p + 1))
-    for d in range(p + 1):
-        at = deg == d
-        if at.any():
-            b, iv = _solve_local(smom[at, : 2 * d + 1], tmom[at, : d + 1], d)
-            beta[np.ix_(at, np.arange(d + 1))] = b
-            inv[np.ix_(at, np.arange(d + 1), np.arange(d + 1))] = iv
-    return beta, inv, deg
-
-
 class LocalSolution:
     """Local fits at a set of points: coefficients, inverse moment matrices, degree used."""
 
@@ -374,10 +297,7 @@ class Smoother:
             sl = slice(start, min(start + _BLOCK, t.size))
             mom, lo, hi = plan(t[sl])
             counts[sl] = np.maximum(hi - lo, 0)
-            if _compiled is not None:
-                _compiled.solve_local(mom, lo, hi, self.sample.distinct_prefix, p, _SINGULAR, beta[sl], inv[sl], deg[sl])
-            else:
-                beta[sl], inv[sl], deg[sl] = _solve_block(mom, lo, hi, self.sample.distinct_prefix, p)
+            _compiled.solve_local(mom, lo, hi, self.sample.distinct_prefix, p, _SINGULAR, beta[sl], inv[sl], deg[sl])
         return LocalSolution(beta, inv, deg, counts)
 
     # -- public API --------------------------------------------------------
@@ -398,8 +318,7 @@ class Smoother:
     def window_counts(self, points: Any) -> np.ndarray:
         """Number of data points carrying weight in each point's window."""
         t = np.asarray(points, dtype=float).ravel()
-        lo, hi = window_bounds(self.sample.xs, t, self.kernel_spec, self.bandwidth)
-        return np.maximum(hi - lo, 0)
+        return window_counts(self.sample.xs, t, self.kernel_spec, self.bandwidth)
 
     def extrapolated(self, points: Any) -> np.ndarray:
         """True for points outside the data range ``[x_min, x_max]``."""

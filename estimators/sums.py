@@ -75,17 +75,13 @@ from scipy.special import comb
 
 from .kernels import Kernel, Shape
 
-try:  # compiled sliding-window sums; the numpy path below is the reference and the fallback
-    from . import _compiled
-except ImportError:  # pragma: no cover - numba missing
-    _compiled = None  # type: ignore[assignment]
+from . import _compiled  # compiled sweeps; _compact_moments below is their vectorised reference
 
 __all__ = [
     "GAUSSIAN_CUTOFF",
     "BINNED_POINTS_PER_BANDWIDTH",
     "moment_sums",
     "window_counts",
-    "distinct_counts",
 ]
 
 GAUSSIAN_CUTOFF = 10.0
@@ -124,22 +120,6 @@ def window_counts(x: np.ndarray, points: np.ndarray, kernel: Kernel, bandwidth: 
     """Number of sorted data points carrying weight in each point's window."""
     lo, hi = window_bounds(x, points, kernel, bandwidth)
     return np.maximum(hi - lo, 0)
-
-
-def distinct_counts(
-    x: np.ndarray, points: np.ndarray, kernel: Kernel, bandwidth: float
-) -> np.ndarray:
-    """Number of distinct ``x`` values inside each point's window."""
-    lo, hi = window_bounds(x, points, kernel, bandwidth)
-    new = np.empty(x.size, dtype=np.int64)
-    if x.size:
-        new[0] = 1
-        new[1:] = x[1:] != x[:-1]
-    prefix = np.concatenate(([0], np.cumsum(new)))
-    inside = hi > lo
-    out = np.zeros(points.shape, dtype=np.int64)
-    out[inside] = prefix[hi[inside]] - prefix[lo[inside] + 1] + 1
-    return out
 
 
 # ---------------------------------------------------------------------------
@@ -435,17 +415,6 @@ class _GaussianPlan:
 # ---------------------------------------------------------------------------
 
 
-def _keys_weights(frac: np.ndarray) -> np.ndarray:
-    """Keys (1981) cubic convolution weights (a = -1/2) for offsets -1, 0, 1, 2."""
-    t = frac
-    w = np.empty(t.shape + (4,))
-    w[..., 0] = ((-0.5 * t + 1.0) * t - 0.5) * t
-    w[..., 1] = (1.5 * t - 2.5) * t * t + 1.0
-    w[..., 2] = ((-1.5 * t + 2.0) * t + 0.5) * t
-    w[..., 3] = (0.5 * t - 0.5) * t * t
-    return w
-
-
 def binned_grid_size(x_min: float, x_max: float, kernel: Kernel, bandwidth: float) -> int:
     """Number of grid points the binned path would use for this problem."""
     span = (x_max - x_min) + 2.0 * effective_radius(kernel) * bandwidth
@@ -479,21 +448,8 @@ class _BinnedPlan:
         reach = int(math.ceil(radius * BINNED_POINTS_PER_BANDWIDTH))
         lags = np.arange(-reach, reach + 1) * (step / h)
         kvals = kernel(lags) ** power
-        if _compiled is not None:
-            counts = np.zeros((size, ncol))
-            _compiled.linear_bin(x, np.ascontiguousarray(q), start, step, size, counts)
-        else:
-            pos = (x - start) / step
-            j = np.clip(np.floor(pos).astype(np.int64), 0, size - 2)
-            frac = pos - j
-            counts = np.stack(
-                [
-                    np.bincount(j, weights=q[:, c] * (1.0 - frac), minlength=size)
-                    + np.bincount(j + 1, weights=q[:, c] * frac, minlength=size)
-                    for c in range(ncol)
-                ],
-                axis=1,
-            )
+        counts = np.zeros((size, ncol))
+        _compiled.linear_bin(x, np.ascontiguousarray(q), start, step, size, counts)
         # sum_j c_j K(u) u^k with u = (g_j - g_l) / h is a correlation: one forward FFT per
         # column, one inverse per (column, order)
         length = sp_fft.next_fast_len(size + 2 * reach, real=True)
@@ -508,22 +464,8 @@ class _BinnedPlan:
     def __call__(self, points: np.ndarray) -> np.ndarray:
         m = points.size
         out = np.zeros((m, self.ncol, self.order + 1))
-        if _compiled is not None:
-            _compiled.keys_interpolate(self.grid, self.start, self.step, points, out)
-            return out
-        gpos = (points - self.start) / self.step
-        inside = (gpos >= 1.0) & (gpos <= self.size - 3.0)
-        gi = np.floor(np.where(inside, gpos, 1.0)).astype(np.int64)
-        wts = _keys_weights(np.where(inside, gpos, 1.0) - gi)
-        for off in range(4):
-            out += wts[:, off, None, None] * self.grid[gi + off - 1]
-        out[~inside] = 0.0
+        _compiled.keys_interpolate(self.grid, self.start, self.step, points, out)
         return out
-
-
-# ---------------------------------------------------------------------------
-# public entry point
-# ---------------------------------------------------------------------------
 
 
 def _is_sorted(a: np.ndarray) -> bool:
@@ -569,34 +511,36 @@ class MomentPlan:
             self.q = np.ascontiguousarray(self.q, dtype=float)
             self._evaluate = self._compact
 
-    def _compact(self, points: np.ndarray) -> np.ndarray:
-        return _compact_moments(self.x, self.q, points, self.kernel, self.shape, self.bandwidth, self.order)
+    def _compact(self, points: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Compiled sliding sweep for compact kernels: moments and window bounds in one pass."""
+        m = points.size
+        mom = np.zeros((m, self.q.shape[1], self.order + 1))
+        lo = np.empty(m, dtype=np.int64)
+        hi = np.empty(m, dtype=np.int64)
+        closed = not self.kernel.vanishes_at_edge
+        if self.shape.poly:
+            _compiled.poly_window_moments(
+                self.x, self.q, points, self.bandwidth, np.asarray(self.shape.poly, dtype=float),
+                bool(self.shape.in_abs), self.orders, closed, mom, lo, hi,
+            )
+        if self.shape.cosines:
+            part = np.zeros_like(mom) if self.shape.poly else mom
+            for amp, omega in self.shape.cosines:
+                _compiled.trig_window_moments(
+                    self.x, self.q, points, self.bandwidth, float(amp), float(omega), self.orders, closed,
+                    part, lo, hi,
+                )
+            if part is not mom:
+                mom += part
+        return mom, lo, hi
 
     def __call__(self, points: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         m = points.size
         if self._evaluate is None or m == 0:
             zeros = np.zeros(m, dtype=np.int64)
             return np.zeros((m, self.q.shape[1], self.order + 1)), zeros, zeros.copy()
-        if self._evaluate == self._compact and _compiled is not None:
-            mom = np.zeros((m, self.q.shape[1], self.order + 1))
-            lo = np.empty(m, dtype=np.int64)
-            hi = np.empty(m, dtype=np.int64)
-            closed = not self.kernel.vanishes_at_edge
-            if self.shape.poly:
-                _compiled.poly_window_moments(
-                    self.x, self.q, points, self.bandwidth, np.asarray(self.shape.poly, dtype=float),
-                    bool(self.shape.in_abs), self.orders, closed, mom, lo, hi,
-                )
-            if self.shape.cosines:
-                part = np.zeros_like(mom) if self.shape.poly else mom
-                for amp, omega in self.shape.cosines:
-                    _compiled.trig_window_moments(
-                        self.x, self.q, points, self.bandwidth, float(amp), float(omega), self.orders, closed,
-                        part, lo, hi,
-                    )
-                if part is not mom:
-                    mom += part
-            return mom, lo, hi
+        if self._evaluate == self._compact:
+            return self._compact(points)
         mom = self._evaluate(points)
         lo, hi = window_bounds(self.x, points, self.kernel, self.bandwidth)
         return mom, lo, hi
