@@ -1,19 +1,24 @@
-"""Compiled sliding-window moment sums for polynomial kernels (numba, cached on disk).
+"""Compiled sliding-window sweeps for compact kernels (numba, cached on disk).
 
-The vectorised numpy path in :mod:`estimators.sums` needs about a hundred
-array passes per query block; at ``n = 1e6`` that is ~60x the time of
-``np.argsort(x)`` while the target is 3x (see ``tests/bench``). This module
-does the same tile-centred sums in one compiled sweep:
+One sweep serves every compact kernel. Queries are processed in ascending
+order; the window ``[lo, hi)`` (and, for kernels in ``|u|``, the split point
+``mid`` at the query) only moves forward.
 
-* queries are processed in ascending order; the window ``[lo, hi)`` and the
-  split point ``mid`` (for kernels in ``|u|``) only move forward;
-* all power sums are kept about the centre ``c`` of the query's tile (width
-  ``h``), so every stored power is at most ``1.5**J`` in size;
-* when the query enters a new tile the sums are recomputed from scratch about
-  the new centre (cost: the window size, so ``O(n)`` in total); inside a tile
-  points are added and removed as the window slides;
-* each query shifts the sums from ``c`` to ``t`` (``|delta| <= 1/2``) by the
-  binomial theorem and applies the kernel's coefficients.
+* The running sums are power sums ``sum q v^a`` (and, for the cosine kernel,
+  ``sum q cos(omega v) v^j``, ``sum q sin(omega v) v^j``) of the tile-local
+  coordinate ``v = (x - c) / h`` about the centre ``c`` of the query's tile
+  (width ``h``). Every stored term is at most ``1.5**a`` in size whatever the
+  location and scale of ``x``.
+* When the query enters a new tile the sums are recomputed from scratch about
+  the new centre (cost: the window, so ``O(n)`` in all); inside a tile points
+  are added and removed as the window slides.
+* At a query ``t`` with ``d = (t - c) / h`` (``|d| <= 1/2``) the kernel is
+  rewritten as a polynomial in ``v`` by a Taylor shift, ``K(v - d) = sum_b
+  g_b(d) v^b`` (angle addition for the cosine), which gives the moments in
+  powers of ``v``; a binomial shift of those ``order + 1`` numbers gives the
+  moments in powers of ``u = v - d``.
+* :func:`window_fit` solves the local least-squares system at once, so no
+  moment array is written.
 
 Compilation results are cached next to this file (``cache=True``); the
 installer warms the cache (``python -m estimators.warmup``) so a service
@@ -27,74 +32,325 @@ import math
 import numpy as np
 from numba import njit
 
-__all__ = ["poly_window_moments", "trig_window_moments", "solve_local", "linear_bin", "keys_interpolate"]
+__all__ = ["window_moments", "window_fit", "solve_local", "linear_bin", "keys_interpolate", "gather_sorted"]
 
 # reassociation and fused multiply-add only: no assumptions about NaN or infinity
 _FAST = {"reassoc", "contract"}
+# Tile width in bandwidths. With width w, |t - c| <= w/2 and |x - c| <= 1 + w/2 inside a
+# window, so the shifts grow like (1 + w)**a for a power sum of order a: tiles of one
+# bandwidth (fewer fresh starts) up to order 6, half a bandwidth above.
+_TILE_LOW_ORDER = 1.0
+_TILE_HIGH_ORDER = 0.5
+_LOW_ORDER = 6
+_QUERY_BLOCK = 512  # queries finished together (buffers stay in the L1/L2 cache)
 
 
 @njit(cache=True, nogil=True, inline="always", error_model="numpy", fastmath=_FAST)
-def _accumulate(xs, q, start, stop, centre, inv_h, jtop, sums, side, sign):  # pragma: no cover - compiled
-    ncol = q.shape[1]
+def _add_point(xs, q, i, centre, inv_h, deg_k, orders, has_trig, omega, sums, trig, side, sign):  # pragma: no cover
+    """Add (``sign = 1``) or remove (``-1``) point ``i`` to the running sums of ``side``."""
+    v = (xs[i] - centre) * inv_h
+    for c in range(len(orders)):
+        p = q[i, c] * sign
+        for j in range(deg_k + orders[c] + 1):
+            sums[side, c, j] += p
+            p *= v
+    if has_trig:
+        cw = math.cos(omega * v)
+        sw = math.sin(omega * v)
+        for c in range(len(orders)):
+            pc = q[i, c] * sign * cw
+            ps = q[i, c] * sign * sw
+            for j in range(orders[c] + 1):
+                trig[0, c, j] += pc
+                trig[1, c, j] += ps
+                pc *= v
+                ps *= v
+
+
+@njit(cache=True, nogil=True, inline="always", error_model="numpy", fastmath=_FAST)
+def _accumulate(xs, q, start, stop, centre, inv_h, deg_k, orders, has_trig, omega, sums, trig, side):  # pragma: no cover
+    """Add points ``start..stop-1`` to the running sums of ``side`` (a tile's fresh start)."""
     for i in range(start, stop):
-        v = (xs[i] - centre) * inv_h
-        for c in range(ncol):
-            p = q[i, c] * sign
-            for j in range(jtop[c] + 1):
-                sums[side, c, j] += p
-                p *= v
+        _add_point(xs, q, i, centre, inv_h, deg_k, orders, has_trig, omega, sums, trig, side, 1.0)
+
+
+@njit(cache=True, nogil=True, inline="always", error_model="numpy")
+def _solve_point(s, r, distinct, degree, singular, beta, inv):  # pragma: no cover - compiled
+    """Solve one local system from moments ``s`` (S_0..S_2p) and ``r`` (T_0..T_p); returns the degree used.
+
+    The degree is ``min(degree, distinct - 1)`` and drops further while the
+    relative determinant is below ``singular``; ``-1`` marks an empty window.
+    ``beta`` (degree+1) and ``inv`` (degree+1, degree+1) are NaN / zero padded.
+    """
+    for i in range(degree + 1):
+        beta[i] = math.nan
+        for j in range(degree + 1):
+            inv[i, j] = 0.0
+    s0 = s[0]
+    if distinct <= 0 or not (s0 > 0.0):
+        return -1
+    d = min(distinct - 1, degree)
+    while d >= 1:
+        if d == 1:
+            a = s[0]
+            b = s[1]
+            c = s[2]
+            det = a * c - b * b
+            if abs(det) > singular * a * c:
+                inv[0, 0] = c / det
+                inv[0, 1] = -b / det
+                inv[1, 0] = -b / det
+                inv[1, 1] = a / det
+                break
+        else:
+            a = s[0]
+            b = s[1]
+            c = s[2]
+            dd = s[3]
+            e = s[4]
+            c00 = c * e - dd * dd
+            c01 = -(b * e - c * dd)
+            c02 = b * dd - c * c
+            c11 = a * e - c * c
+            c12 = -(a * dd - b * c)
+            c22 = a * c - b * b
+            det = a * c00 + b * c01 + c * c02
+            if abs(det) > singular * a * c * e:
+                inv[0, 0] = c00 / det
+                inv[0, 1] = c01 / det
+                inv[1, 0] = c01 / det
+                inv[0, 2] = c02 / det
+                inv[2, 0] = c02 / det
+                inv[1, 1] = c11 / det
+                inv[1, 2] = c12 / det
+                inv[2, 1] = c12 / det
+                inv[2, 2] = c22 / det
+                break
+        d -= 1
+    if d <= 0:
+        d = 0
+        inv[0, 0] = 1.0 / s0
+    for i in range(d + 1):
+        acc = 0.0
+        for j in range(d + 1):
+            acc += inv[i, j] * r[j]
+        beta[i] = acc
+    return d
 
 
 @njit(cache=True, nogil=True, error_model="numpy", fastmath=_FAST)
-def poly_window_moments(xs, q, ts, h, coef, in_abs, orders, closed, out, lo_out, hi_out):  # pragma: no cover
-    """Fill ``out[k, c, j] = sum_i q[i, c] K(u_i) u_i^j``, ``j <= orders[c]``, for sorted ``xs`` and ``ts``.
+def _block_moments(nb, raw, trig, dd, kcoef, deg_k, nside, has_trig, amp, omega, orders, g, mv, mt):  # pragma: no cover
+    """Moments in powers of ``u`` for a block of ``nb`` queries: ``mt[c, j, kk]`` from the raw sums.
 
-    ``K(u) = sum_a coef[a] * s^a`` on the window, ``s = |u|`` if ``in_abs`` else ``u``.
-    ``lo_out``/``hi_out`` receive the window index range of each query.
-    Side 0 of the running sums holds points with ``x >= t`` (all points when
-    the kernel is a polynomial in ``u``), side 1 those with ``x < t``.
+    Every inner loop runs over the queries of the block, so it vectorises.
+    """
+    ncol = len(orders)
+    for c in range(ncol):
+        for j in range(orders[c] + 1):
+            for kk in range(nb):
+                mv[c, j, kk] = 0.0
+    if True:
+        for side in range(nside):
+            # Taylor shift: coefficients g_b of K(v - d) in powers of v
+            for b in range(deg_k + 1):
+                for kk in range(nb):
+                    g[b, kk] = kcoef[side, b]
+            for i in range(deg_k):
+                for b in range(deg_k - 1, i - 1, -1):
+                    for kk in range(nb):
+                        g[b, kk] -= dd[kk] * g[b + 1, kk]
+            for c in range(ncol):
+                for j in range(orders[c] + 1):
+                    for b in range(deg_k + 1):
+                        for kk in range(nb):
+                            mv[c, j, kk] += g[b, kk] * raw[side, c, b + j, kk]
+    if has_trig:
+        for kk in range(nb):
+            g[0, kk] = amp * math.cos(omega * dd[kk])
+            g[1, kk] = amp * math.sin(omega * dd[kk])
+        for c in range(ncol):
+            for j in range(orders[c] + 1):
+                for kk in range(nb):
+                    mv[c, j, kk] += g[0, kk] * trig[0, c, j, kk] + g[1, kk] * trig[1, c, j, kk]
+    # powers of v -> powers of u = v - d: u^j = sum_i C(j, i) v^i (-d)^(j - i)
+    for c in range(ncol):
+        for j in range(orders[c], -1, -1):
+            for i in range(j - 1, -1, -1):
+                cf = _binomial(j, i)
+                for kk in range(nb):
+                    mv[c, j, kk] += cf * _ipow(-dd[kk], j - i) * mv[c, i, kk]
+            for kk in range(nb):
+                mt[c, j, kk] = mv[c, j, kk]
+
+
+@njit(cache=True, nogil=True, inline="always")
+def _binomial(j, i):  # pragma: no cover - compiled
+    out = 1.0
+    for a in range(i):
+        out = out * (j - a) / (a + 1)
+    return out
+
+
+@njit(cache=True, nogil=True, inline="always", fastmath=_FAST)
+def _ipow(x, k):  # pragma: no cover - compiled
+    out = 1.0
+    for _ in range(k):
+        out *= x
+    return out
+
+
+@njit(cache=True, nogil=True, error_model="numpy", fastmath=_FAST)
+def _block_fits(nb, k0, mt, cnt, distinct, degree, singular, beta, inv, deg_used, s, r):  # pragma: no cover
+    """Solve the local systems of a block; the full-degree solve is vectorised, other cases go point by point."""
+    if degree == 0:
+        for kk in range(nb):
+            a = mt[0, 0, kk]
+            inv[k0 + kk, 0, 0] = 1.0 / a
+            beta[k0 + kk, 0] = mt[1, 0, kk] / a
+            deg_used[k0 + kk] = 0
+    elif degree == 1:
+        for kk in range(nb):
+            a = mt[0, 0, kk]
+            b = mt[0, 1, kk]
+            c = mt[0, 2, kk]
+            rd = 1.0 / (a * c - b * b)
+            i00 = c * rd
+            i01 = -b * rd
+            i11 = a * rd
+            inv[k0 + kk, 0, 0] = i00
+            inv[k0 + kk, 0, 1] = i01
+            inv[k0 + kk, 1, 0] = i01
+            inv[k0 + kk, 1, 1] = i11
+            beta[k0 + kk, 0] = i00 * mt[1, 0, kk] + i01 * mt[1, 1, kk]
+            beta[k0 + kk, 1] = i01 * mt[1, 0, kk] + i11 * mt[1, 1, kk]
+            deg_used[k0 + kk] = 1
+    else:
+        for kk in range(nb):
+            a = mt[0, 0, kk]
+            b = mt[0, 1, kk]
+            c = mt[0, 2, kk]
+            dd = mt[0, 3, kk]
+            e = mt[0, 4, kk]
+            c00 = c * e - dd * dd
+            c01 = -(b * e - c * dd)
+            c02 = b * dd - c * c
+            c11 = a * e - c * c
+            c12 = -(a * dd - b * c)
+            c22 = a * c - b * b
+            rd = 1.0 / (a * c00 + b * c01 + c * c02)
+            c00 *= rd
+            c01 *= rd
+            c02 *= rd
+            c11 *= rd
+            c12 *= rd
+            c22 *= rd
+            inv[k0 + kk, 0, 0] = c00
+            inv[k0 + kk, 0, 1] = c01
+            inv[k0 + kk, 1, 0] = c01
+            inv[k0 + kk, 0, 2] = c02
+            inv[k0 + kk, 2, 0] = c02
+            inv[k0 + kk, 1, 1] = c11
+            inv[k0 + kk, 1, 2] = c12
+            inv[k0 + kk, 2, 1] = c12
+            inv[k0 + kk, 2, 2] = c22
+            r0 = mt[1, 0, kk]
+            r1 = mt[1, 1, kk]
+            r2 = mt[1, 2, kk]
+            beta[k0 + kk, 0] = c00 * r0 + c01 * r1 + c02 * r2
+            beta[k0 + kk, 1] = c01 * r0 + c11 * r1 + c12 * r2
+            beta[k0 + kk, 2] = c02 * r0 + c12 * r1 + c22 * r2
+            deg_used[k0 + kk] = 2
+    # empty or degenerate windows and near-singular systems: the careful solve, point by point
+    for kk in range(nb):
+        a = mt[0, 0, kk]
+        if degree == 0:
+            careful = not (a > 0.0) or cnt[kk] <= 0
+        elif degree == 1:
+            c = mt[0, 2, kk]
+            det = a * c - mt[0, 1, kk] ** 2
+            careful = not (a > 0.0) or cnt[kk] <= 0 or distinct[kk] < 2 or not (abs(det) > singular * a * c)
+        else:
+            c = mt[0, 2, kk]
+            e = mt[0, 4, kk]
+            careful = not (a > 0.0) or cnt[kk] <= 0 or distinct[kk] < 3 or not (abs(
+                a * (c * e - mt[0, 3, kk] ** 2) - mt[0, 1, kk] * (mt[0, 1, kk] * e - c * mt[0, 3, kk])
+                + c * (mt[0, 1, kk] * mt[0, 3, kk] - c * c)
+            ) > singular * a * c * e)
+        if careful:
+            for j in range(2 * degree + 1):
+                s[j] = mt[0, j, kk]
+            for j in range(degree + 1):
+                r[j] = mt[1, j, kk]
+            dist = distinct[kk] if cnt[kk] > 0 else 0
+            deg_used[k0 + kk] = _solve_point(s, r, dist, degree, singular, beta[k0 + kk], inv[k0 + kk])
+
+
+@njit(cache=True, nogil=True, inline="always", error_model="numpy", fastmath=_FAST)
+def _sweep(
+    xs, q, ts, h, poly, sides, trig_marker, amp, omega, orders, closed,
+    fit_degree, distinct_prefix, singular, out, lo_out, hi_out, beta, inv, deg_used, counts,
+):  # pragma: no cover - compiled
+    """The shared sweep; ``fit_degree < 0`` writes moments, otherwise local fits (see the wrappers).
+
+    The kernel's form comes as tuples whose lengths are part of the compiled
+    signature (``poly``: coefficients; ``sides``: 2 for a polynomial in ``|u|``;
+    ``trig_marker``: one element when there is a cosine term), so loop bounds
+    are constants wherever the caller's are. Queries go in blocks of
+    ``_QUERY_BLOCK``: the sweep stores each query's raw sums, then
+    :func:`_block_moments` and :func:`_block_fits` finish the block with loops
+    that run across queries.
     """
     n = xs.size
     m = ts.size
-    ncol = q.shape[1]
-    deg_k = coef.size - 1
+    ncol = len(orders)
+    deg_k = len(poly) - 1
+    nside = len(sides)
+    in_abs = nside == 2
+    has_trig = len(trig_marker) > 0
     order = 0
     for c in range(ncol):
         order = max(order, orders[c])
     jmax = deg_k + order
-    jtop = np.empty(ncol, dtype=np.int64)
+    order_arr = np.empty(ncol, dtype=np.int64)
     for c in range(ncol):
-        jtop[c] = deg_k + orders[c]
-    inv_h = 1.0 / h
-    nside = 2 if in_abs else 1
-    binom = np.zeros((jmax + 1, jmax + 1))
-    for a in range(jmax + 1):
-        binom[a, 0] = 1.0
-        for b in range(1, a + 1):
-            binom[a, b] = binom[a - 1, b - 1] + (binom[a - 1, b] if b <= a - 1 else 0.0)
-    # kernel map: out_j = sum_a kmap[side, a] * raw[a + j]
-    kmap = np.zeros((2, deg_k + 1))
+        order_arr[c] = orders[c]
+    # kernel coefficients in powers of u on each side (side 1: u < 0, K in |u| = -u)
+    kcoef = np.zeros((2, deg_k + 1))
     for a in range(deg_k + 1):
-        kmap[0, a] = coef[a]
-        kmap[1, a] = -coef[a] if (in_abs and a % 2 == 1) else coef[a]
+        kcoef[0, a] = poly[a]
+        kcoef[1, a] = -poly[a] if (in_abs and a % 2 == 1) else poly[a]
     sums = np.zeros((2, ncol, jmax + 1))
-    raw = np.zeros(jmax + 1)
-    dpow = np.zeros(jmax + 1)
+    trig = np.zeros((2, ncol, order + 1))
+    nbuf = _QUERY_BLOCK
+    raw = np.empty((nside, ncol, jmax + 1, nbuf))
+    rtrig = np.empty((2, ncol, order + 1, nbuf if has_trig else 0))
+    dd = np.empty(nbuf)
+    cnt = np.empty(nbuf, dtype=np.int64)
+    distinct = np.empty(nbuf, dtype=np.int64)
+    g = np.empty((max(deg_k, 1) + 1, nbuf))
+    mv = np.empty((ncol, order + 1, nbuf))
+    mt = np.empty((ncol, order + 1, nbuf))
+    s_pt = np.empty(5)
+    r_pt = np.empty(3)
+    inv_h = 1.0 / h
+    width = (_TILE_LOW_ORDER if jmax <= _LOW_ORDER else _TILE_HIGH_ORDER) * h
+    inv_w = 1.0 / width
     origin = xs[0] if n > 0 else 0.0
     lo = 0
     hi = 0
     mid = 0
-    tile = math.nan
     centre = 0.0
+    tile_end = -math.inf
+    kk = 0
     for k in range(m):
         t = ts[k]
         a_edge = t - h
         b_edge = t + h
-        new_tile = math.floor((t - origin) / h)
-        fresh = new_tile != tile
+        fresh = not (t < tile_end)
         while lo < n and (xs[lo] < a_edge or (not closed and xs[lo] == a_edge)):
             if not fresh:
-                _accumulate(xs, q, lo, lo + 1, centre, inv_h, jtop, sums, 1 if (in_abs and lo < mid) else 0, -1.0)
+                side = 1 if (in_abs and lo < mid) else 0
+                _add_point(xs, q, lo, centre, inv_h, deg_k, orders, has_trig, omega, sums, trig, side, -1.0)
             lo += 1
         if hi < lo:
             hi = lo
@@ -102,116 +358,100 @@ def poly_window_moments(xs, q, ts, h, coef, in_abs, orders, closed, out, lo_out,
             mid = lo
         while hi < n and (xs[hi] < b_edge or (closed and xs[hi] == b_edge)):
             if not fresh:
-                _accumulate(xs, q, hi, hi + 1, centre, inv_h, jtop, sums, 0, 1.0)
+                _add_point(xs, q, hi, centre, inv_h, deg_k, orders, has_trig, omega, sums, trig, 0, 1.0)
             hi += 1
         if in_abs:
             while mid < hi and xs[mid] < t:
                 if not fresh:
-                    _accumulate(xs, q, mid, mid + 1, centre, inv_h, jtop, sums, 0, -1.0)
-                    _accumulate(xs, q, mid, mid + 1, centre, inv_h, jtop, sums, 1, 1.0)
+                    _add_point(xs, q, mid, centre, inv_h, deg_k, orders, has_trig, omega, sums, trig, 0, -1.0)
+                    _add_point(xs, q, mid, centre, inv_h, deg_k, orders, has_trig, omega, sums, trig, 1, 1.0)
                 mid += 1
             if mid > hi:
                 mid = hi
         if fresh:
-            tile = new_tile
-            centre = origin + (tile + 0.5) * h
+            tile = math.floor((t - origin) * inv_w)
+            centre = origin + (tile + 0.5) * width
+            tile_end = origin + (tile + 1.0) * width
             sums[:, :, :] = 0.0
+            trig[:, :, :] = 0.0
             if in_abs:
-                _accumulate(xs, q, lo, mid, centre, inv_h, jtop, sums, 1, 1.0)
-                _accumulate(xs, q, mid, hi, centre, inv_h, jtop, sums, 0, 1.0)
+                _accumulate(xs, q, lo, mid, centre, inv_h, deg_k, orders, has_trig, omega, sums, trig, 1)
+                _accumulate(xs, q, mid, hi, centre, inv_h, deg_k, orders, has_trig, omega, sums, trig, 0)
             else:
-                _accumulate(xs, q, lo, hi, centre, inv_h, jtop, sums, 0, 1.0)
-        lo_out[k] = lo
-        hi_out[k] = hi
-        for c in range(ncol):
-            for j in range(order + 1):
-                out[k, c, j] = 0.0
-        if hi <= lo:
-            continue
-        delta = (centre - t) * inv_h
-        dpow[0] = 1.0
-        for j in range(1, jmax + 1):
-            dpow[j] = dpow[j - 1] * delta
+                _accumulate(xs, q, lo, hi, centre, inv_h, deg_k, orders, has_trig, omega, sums, trig, 0)
+        if fit_degree < 0:
+            lo_out[k] = lo
+            hi_out[k] = hi
+        else:
+            counts[k] = hi - lo
+        cnt[kk] = hi - lo
+        distinct[kk] = distinct_prefix[hi] - distinct_prefix[lo + 1] + 1 if (fit_degree >= 0 and hi > lo) else 0
+        dd[kk] = (t - centre) * inv_h
         for side in range(nside):
             for c in range(ncol):
-                for big in range(jtop[c] + 1):
-                    acc = 0.0
-                    for j in range(big + 1):
-                        acc += binom[big, j] * dpow[big - j] * sums[side, c, j]
-                    raw[big] = acc
+                for j in range(deg_k + orders[c] + 1):
+                    raw[side, c, j, kk] = sums[side, c, j]
+        if has_trig:
+            for c in range(ncol):
                 for j in range(orders[c] + 1):
-                    acc = 0.0
-                    for a in range(deg_k + 1):
-                        acc += kmap[side, a] * raw[a + j]
-                    out[k, c, j] += acc
+                    rtrig[0, c, j, kk] = trig[0, c, j]
+                    rtrig[1, c, j, kk] = trig[1, c, j]
+        kk += 1
+        if kk == nbuf or k == m - 1:
+            k0 = k + 1 - kk
+            _block_moments(kk, raw, rtrig, dd, kcoef, deg_k, nside, has_trig, amp, omega, order_arr, g, mv, mt)
+            if fit_degree < 0:
+                for i in range(kk):
+                    empty = cnt[i] <= 0
+                    for c in range(ncol):
+                        for j in range(order + 1):
+                            out[k0 + i, c, j] = mt[c, j, i] if (j <= orders[c] and not empty) else 0.0
+            else:
+                _block_fits(kk, k0, mt, cnt, distinct, fit_degree, singular, beta, inv, deg_used, s_pt, r_pt)
+            kk = 0
+
+
+@njit(cache=True, nogil=True, error_model="numpy", fastmath=_FAST)
+def window_moments(xs, q, ts, h, poly, sides, trig_marker, amp, omega, orders, closed, out, lo_out, hi_out):  # pragma: no cover
+    """Fill ``out[k, c, j] = sum_i q[i, c] K(u_i) u_i^j`` (``j <= orders[c]``, zero above) for sorted ``xs``, ``ts``.
+
+    ``K(u) = sum_a poly[a] s^a + amp cos(omega u)`` on the window with ``s = |u|``
+    when ``len(sides) == 2`` and ``s = u`` otherwise; the cosine term is present
+    when ``trig_marker`` is not empty (see :func:`estimators.sums.compiled_shape`).
+    ``lo_out``/``hi_out`` receive the window index range of each query.
+    """
+    _sweep(
+        xs, q, ts, h, poly, sides, trig_marker, amp, omega, orders, closed,
+        -1, np.empty(0, dtype=np.int64), 0.0, out, lo_out, hi_out,
+        np.empty((0, 1)), np.empty((0, 1, 1)), np.empty(0, dtype=np.int64), np.empty(0, dtype=np.int64),
+    )
+
+
+@njit(cache=True, nogil=True, error_model="numpy", fastmath=_FAST)
+def window_fit(
+    xs, q, ts, h, poly, sides, trig_marker, amp, omega, degree_marker, closed, distinct_prefix, singular,
+    beta, inv, deg_used, counts,
+):  # pragma: no cover - compiled
+    """Local polynomial fits at sorted ``ts`` in one sweep; ``q = [w, w y]``, kernel as :func:`window_moments`.
+
+    The degree is ``len(degree_marker) - 1`` (a compile-time constant). Fills
+    ``beta`` (m, degree+1), ``inv`` (m, degree+1, degree+1), ``deg_used`` (m,)
+    and ``counts`` (m,) as :func:`solve_local` does.
+    """
+    degree = len(degree_marker) - 1
+    _sweep(
+        xs, q, ts, h, poly, sides, trig_marker, amp, omega, (2 * degree, degree), closed,
+        degree, distinct_prefix, singular, np.empty((0, 1, 1)), np.empty(0, dtype=np.int64),
+        np.empty(0, dtype=np.int64), beta, inv, deg_used, counts,
+    )
 
 
 @njit(cache=True, nogil=True, error_model="numpy")
 def solve_local(mom, lo, hi, distinct_prefix, degree, singular, beta, inv, deg_used):  # pragma: no cover
-    """Solve the local Hankel systems from moments ``mom[k, 0, :]`` (S) and ``mom[k, 1, :]`` (T).
-
-    The degree at a point is ``min(degree, distinct - 1)`` and drops further while
-    the relative determinant is below ``singular``; ``-1`` marks an empty window.
-    ``beta`` (m, degree+1) and ``inv`` (m, degree+1, degree+1) are filled with NaN / 0 padding.
-    """
-    m = mom.shape[0]
-    for k in range(m):
-        for i in range(degree + 1):
-            beta[k, i] = math.nan
-            for j in range(degree + 1):
-                inv[k, i, j] = 0.0
-        s0 = mom[k, 0, 0]
-        if hi[k] <= lo[k] or not (s0 > 0.0):
-            deg_used[k] = -1
-            continue
-        d = distinct_prefix[hi[k]] - distinct_prefix[lo[k] + 1]
-        if d > degree:
-            d = degree
-        while d >= 1:
-            if d == 1:
-                a = mom[k, 0, 0]
-                b = mom[k, 0, 1]
-                c = mom[k, 0, 2]
-                det = a * c - b * b
-                if abs(det) > singular * a * c:
-                    inv[k, 0, 0] = c / det
-                    inv[k, 0, 1] = -b / det
-                    inv[k, 1, 0] = -b / det
-                    inv[k, 1, 1] = a / det
-                    break
-            else:
-                a = mom[k, 0, 0]
-                b = mom[k, 0, 1]
-                c = mom[k, 0, 2]
-                dd = mom[k, 0, 3]
-                e = mom[k, 0, 4]
-                c00 = c * e - dd * dd
-                c01 = -(b * e - c * dd)
-                c02 = b * dd - c * c
-                c11 = a * e - c * c
-                c12 = -(a * dd - b * c)
-                c22 = a * c - b * b
-                det = a * c00 + b * c01 + c * c02
-                if abs(det) > singular * a * c * e:
-                    inv[k, 0, 0] = c00 / det
-                    inv[k, 0, 1] = c01 / det
-                    inv[k, 1, 0] = c01 / det
-                    inv[k, 0, 2] = c02 / det
-                    inv[k, 2, 0] = c02 / det
-                    inv[k, 1, 1] = c11 / det
-                    inv[k, 1, 2] = c12 / det
-                    inv[k, 2, 1] = c12 / det
-                    inv[k, 2, 2] = c22 / det
-                    break
-            d -= 1
-        if d == 0:
-            inv[k, 0, 0] = 1.0 / s0
-        deg_used[k] = d
-        for i in range(d + 1):
-            acc = 0.0
-            for j in range(d + 1):
-                acc += inv[k, i, j] * mom[k, 1, j]
-            beta[k, i] = acc
+    """Solve the local systems from moments ``mom[k, 0, :]`` (S) and ``mom[k, 1, :]`` (T); see :func:`_solve_point`."""
+    for k in range(mom.shape[0]):
+        distinct = distinct_prefix[hi[k]] - distinct_prefix[lo[k] + 1] + 1 if hi[k] > lo[k] else 0
+        deg_used[k] = _solve_point(mom[k, 0], mom[k, 1], distinct, degree, singular, beta[k], inv[k])
 
 
 @njit(cache=True, nogil=True, error_model="numpy")
@@ -259,87 +499,20 @@ def keys_interpolate(grid, start, step, points, out):  # pragma: no cover - comp
                 )
 
 
-@njit(cache=True, nogil=True, inline="always", error_model="numpy", fastmath=_FAST)
-def _accumulate_trig(xs, q, start, stop, centre, inv_h, omega, jtop, sums, sign):  # pragma: no cover
-    ncol = q.shape[1]
-    for i in range(start, stop):
-        v = (xs[i] - centre) * inv_h
-        cw = math.cos(omega * v)
-        sw = math.sin(omega * v)
-        for c in range(ncol):
-            pc = q[i, c] * sign * cw
-            ps = q[i, c] * sign * sw
-            for j in range(jtop[c] + 1):
-                sums[0, c, j] += pc
-                sums[1, c, j] += ps
-                pc *= v
-                ps *= v
 
 
-@njit(cache=True, nogil=True, error_model="numpy", fastmath=_FAST)
-def trig_window_moments(xs, q, ts, h, amp, omega, orders, closed, out, lo_out, hi_out):  # pragma: no cover
-    """Add ``amp * sum_i q[i, c] cos(omega u_i) u_i^j`` (``|u_i| <= 1``) to ``out[k, c, j]``.
-
-    Same sweep as :func:`poly_window_moments`; the sums hold ``cos(omega v) v^j``
-    and ``sin(omega v) v^j`` about the tile centre and are moved to ``t`` by the
-    angle-addition formula and the binomial theorem.
-    """
-    n = xs.size
-    m = ts.size
-    ncol = q.shape[1]
-    order = 0
-    for c in range(ncol):
-        order = max(order, orders[c])
-    jtop = np.empty(ncol, dtype=np.int64)
-    for c in range(ncol):
-        jtop[c] = orders[c]
-    binom = np.zeros((order + 1, order + 1))
-    for a in range(order + 1):
-        binom[a, 0] = 1.0
-        for b in range(1, a + 1):
-            binom[a, b] = binom[a - 1, b - 1] + (binom[a - 1, b] if b <= a - 1 else 0.0)
-    inv_h = 1.0 / h
-    sums = np.zeros((2, ncol, order + 1))
-    dpow = np.zeros(order + 1)
-    origin = xs[0] if n > 0 else 0.0
-    lo = 0
-    hi = 0
-    tile = math.nan
-    centre = 0.0
-    for k in range(m):
-        t = ts[k]
-        a_edge = t - h
-        b_edge = t + h
-        new_tile = math.floor((t - origin) / h)
-        fresh = new_tile != tile
-        while lo < n and (xs[lo] < a_edge or (not closed and xs[lo] == a_edge)):
-            if not fresh:
-                _accumulate_trig(xs, q, lo, lo + 1, centre, inv_h, omega, jtop, sums, -1.0)
-            lo += 1
-        if hi < lo:
-            hi = lo
-        while hi < n and (xs[hi] < b_edge or (closed and xs[hi] == b_edge)):
-            if not fresh:
-                _accumulate_trig(xs, q, hi, hi + 1, centre, inv_h, omega, jtop, sums, 1.0)
-            hi += 1
-        if fresh:
-            tile = new_tile
-            centre = origin + (tile + 0.5) * h
-            sums[:, :, :] = 0.0
-            _accumulate_trig(xs, q, lo, hi, centre, inv_h, omega, jtop, sums, 1.0)
-        lo_out[k] = lo
-        hi_out[k] = hi
-        if hi <= lo:
-            continue
-        delta = (centre - t) * inv_h
-        cd = math.cos(omega * delta)
-        sd = math.sin(omega * delta)
-        dpow[0] = 1.0
-        for j in range(1, order + 1):
-            dpow[j] = dpow[j - 1] * delta
-        for c in range(ncol):
-            for big in range(orders[c] + 1):
-                acc = 0.0
-                for j in range(big + 1):
-                    acc += binom[big, j] * dpow[big - j] * (cd * sums[0, c, j] - sd * sums[1, c, j])
-                out[k, c, big] += amp * acc
+@njit(cache=True, nogil=True, error_model="numpy")
+def gather_sorted(x, y, order, xs, ys, distinct_prefix):  # pragma: no cover - compiled
+    """``xs = x[order]``, ``ys = y[order]`` and ``distinct_prefix[k]`` = distinct values among ``xs[:k]``, in one pass."""
+    count = 0
+    distinct_prefix[0] = 0
+    prev = math.nan
+    for i in range(order.size):
+        j = order[i]
+        xi = x[j]
+        xs[i] = xi
+        ys[i] = y[j]
+        if i == 0 or xi != prev:
+            count += 1
+        prev = xi
+        distinct_prefix[i + 1] = count

@@ -27,7 +27,7 @@ import numpy as np
 from .cautions import Caution
 from .kernels import Kernel, get_kernel
 from . import _compiled
-from .sums import MomentPlan, binned_grid_size, moment_sums, window_counts
+from .sums import MomentPlan, binned_grid_size, compiled_shape, moment_sums, window_counts
 
 if TYPE_CHECKING:  # pragma: no cover
     from .bandwidth import Selection
@@ -60,7 +60,11 @@ class SortedSample:
     def __init__(self, x: np.ndarray, y: np.ndarray, w: np.ndarray, unit_weights: bool = False) -> None:
         self.x, self.y, self.w = x, y, w
         self.order = np.argsort(x)
-        xs, ys = x[self.order], y[self.order]
+        n = x.size
+        xs, ys = np.empty(n), np.empty(n)
+        #: number of distinct x values among the first k sorted points (sources, once zero weights are dropped)
+        self.distinct_prefix = np.empty(n + 1, dtype=np.int64)
+        _compiled.gather_sorted(x, y, self.order, xs, ys, self.distinct_prefix)
         if unit_weights:
             ws = np.ones_like(xs)
         else:
@@ -68,15 +72,14 @@ class SortedSample:
             keep = ws > 0
             if not keep.all():
                 xs, ys, ws = xs[keep], ys[keep], ws[keep]
+                new = np.empty(xs.size, dtype=np.int64)
+                new[0] = 1
+                new[1:] = xs[1:] != xs[:-1]
+                self.distinct_prefix = np.concatenate(([0], np.cumsum(new)))
         self.xs, self.ys, self.ws = xs, ys, ws
         self.y_centre = float(np.mean(ys) if unit_weights else np.sum(ws * ys) / np.sum(ws))
         self.yc = ys - self.y_centre
         self._values: np.ndarray | None = None
-        new = np.empty(xs.size, dtype=np.int64)
-        new[0] = 1
-        new[1:] = xs[1:] != xs[:-1]
-        #: number of distinct source x values among the first k sources
-        self.distinct_prefix = np.concatenate(([0], np.cumsum(new)))
 
     @property
     def n(self) -> int:
@@ -292,6 +295,15 @@ class Smoother:
         inv = np.empty((t.size, p + 1, p + 1))
         deg = np.empty(t.size, dtype=np.int64)
         counts = np.empty(t.size, dtype=np.int64)
+        shape = self.kernel_spec.shape
+        if engine == "exact" and shape is not None:
+            # compact kernel: moments and solves in one compiled sweep, no moment array
+            _compiled.window_fit(
+                xs, values, t, self.bandwidth, *compiled_shape(shape), (0,) * (p + 1),
+                not self.kernel_spec.vanishes_at_edge,
+                self.sample.distinct_prefix, _SINGULAR, beta, inv, deg, counts,
+            )
+            return LocalSolution(beta, inv, deg, counts)
         plan = MomentPlan(xs, values, self.kernel_spec, self.bandwidth, 2 * p, engine=engine, column_orders=(2 * p, p))
         for start in range(0, t.size, _BLOCK):
             sl = slice(start, min(start + _BLOCK, t.size))

@@ -23,8 +23,11 @@ Compact kernels (``engine="exact"``)
     exact binomial (or angle-addition) shift. All terms then stay below
     ``2**J`` times the result (``J`` the polynomial degree involved, at most 13
     for fits), so the relative rounding error is about ``2**J * eps``,
-    independent of the location and scale of ``x``. Cost: one pass over the
-    sorted data per value column and power plus ``O(log n)`` per query point.
+    independent of the location and scale of ``x``. That vectorised form
+    (``_compact_moments``) is the reference the tests hold the compiled sweep
+    to; the sweep used by default (:mod:`estimators._compiled`) slides the sums
+    over sorted queries about the centre of the query's tile and rewrites the
+    kernel about that centre by a Taylor shift, ``O(n + m)`` after sorting.
 
 Gaussian kernel (``engine="exact"``)
     A fast Gauss transform (Greengard & Strain 1991) in one dimension. Sources
@@ -468,6 +471,22 @@ class _BinnedPlan:
         return out
 
 
+def compiled_shape(shape: Shape) -> tuple[tuple[float, ...], tuple[int, ...], tuple[int, ...], float, float]:
+    """A compact kernel's form as the compiled sweeps take it: ``(poly, sides, trig_marker, amp, omega)``.
+
+    Tuple lengths are part of the compiled signature, so each kernel gets loops
+    with constant bounds: ``poly`` holds at least one coefficient, ``sides`` has
+    two entries for a polynomial in ``|u|``, ``trig_marker`` one entry when the
+    kernel has a cosine term ``amp cos(omega u)``.
+    """
+    if len(shape.cosines) > 1:
+        raise NotImplementedError("the compiled sweep takes at most one cosine term")
+    amp, omega = shape.cosines[0] if shape.cosines else (0.0, 0.0)
+    poly = tuple(float(c) for c in shape.poly) or (0.0,)
+    sides = (0, 1) if shape.in_abs else (0,)
+    return poly, sides, ((0,) if shape.cosines else ()), float(amp), float(omega)
+
+
 def _is_sorted(a: np.ndarray) -> bool:
     return bool(a.size < 2 or np.all(a[1:] >= a[:-1]))
 
@@ -514,24 +533,15 @@ class MomentPlan:
     def _compact(self, points: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """Compiled sliding sweep for compact kernels: moments and window bounds in one pass."""
         m = points.size
-        mom = np.zeros((m, self.q.shape[1], self.order + 1))
+        mom = np.empty((m, self.q.shape[1], self.order + 1))
         lo = np.empty(m, dtype=np.int64)
         hi = np.empty(m, dtype=np.int64)
-        closed = not self.kernel.vanishes_at_edge
-        if self.shape.poly:
-            _compiled.poly_window_moments(
-                self.x, self.q, points, self.bandwidth, np.asarray(self.shape.poly, dtype=float),
-                bool(self.shape.in_abs), self.orders, closed, mom, lo, hi,
-            )
-        if self.shape.cosines:
-            part = np.zeros_like(mom) if self.shape.poly else mom
-            for amp, omega in self.shape.cosines:
-                _compiled.trig_window_moments(
-                    self.x, self.q, points, self.bandwidth, float(amp), float(omega), self.orders, closed,
-                    part, lo, hi,
-                )
-            if part is not mom:
-                mom += part
+        poly, sides, trig_marker, amp, omega = compiled_shape(self.shape)
+        # one compiled sweep for all kernels here (coefficients as an array); the fits specialise per kernel
+        _compiled.window_moments(
+            self.x, self.q, points, self.bandwidth, np.asarray(poly), sides, trig_marker, amp, omega, self.orders,
+            not self.kernel.vanishes_at_edge, mom, lo, hi,
+        )
         return mom, lo, hi
 
     def __call__(self, points: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
