@@ -42,7 +42,9 @@ _FAST = {"reassoc", "contract"}
 _TILE_LOW_ORDER = 1.0
 _TILE_HIGH_ORDER = 0.5
 _LOW_ORDER = 6
-_QUERY_BLOCK = 512  # queries finished together (buffers stay in the L1/L2 cache)
+# Queries finished together. Not a power of two: the raw-sum buffer is (sums, queries), and a
+# row stride of a multiple of 4 KiB would put every sum of one query in the same cache set.
+_QUERY_BLOCK = 520
 
 
 @njit(cache=True, nogil=True, inline="always", error_model="numpy", fastmath=_FAST)
@@ -72,6 +74,18 @@ def _accumulate(xs, q, start, stop, centre, inv_h, deg_k, orders, has_trig, omeg
     """Add points ``start..stop-1`` to the running sums of ``side`` (a tile's fresh start)."""
     for i in range(start, stop):
         _add_point(xs, q, i, centre, inv_h, deg_k, orders, has_trig, omega, sums, trig, side, 1.0)
+
+
+@njit(cache=True, nogil=True, inline="always", error_model="numpy", fastmath=_FAST)
+def _cofactors3(a, b, c, dd, e):  # pragma: no cover - compiled
+    """Cofactors and determinant of the Hankel matrix ``[[a, b, c], [b, c, dd], [c, dd, e]]``."""
+    c00 = c * e - dd * dd
+    c01 = -(b * e - c * dd)
+    c02 = b * dd - c * c
+    c11 = a * e - c * c
+    c12 = -(a * dd - b * c)
+    c22 = a * c - b * b
+    return c00, c01, c02, c11, c12, c22, a * c00 + b * c01 + c * c02
 
 
 @njit(cache=True, nogil=True, inline="always", error_model="numpy")
@@ -104,17 +118,9 @@ def _solve_point(s, r, distinct, degree, singular, beta, inv):  # pragma: no cov
                 break
         else:
             a = s[0]
-            b = s[1]
             c = s[2]
-            dd = s[3]
             e = s[4]
-            c00 = c * e - dd * dd
-            c01 = -(b * e - c * dd)
-            c02 = b * dd - c * c
-            c11 = a * e - c * c
-            c12 = -(a * dd - b * c)
-            c22 = a * c - b * b
-            det = a * c00 + b * c01 + c * c02
+            c00, c01, c02, c11, c12, c22, det = _cofactors3(a, s[1], c, s[3], e)
             if abs(det) > singular * a * c * e:
                 inv[0, 0] = c00 / det
                 inv[0, 1] = c01 / det
@@ -226,18 +232,10 @@ def _block_fits(nb, k0, mt, cnt, distinct, degree, singular, beta, inv, deg_used
             deg_used[k0 + kk] = 1
     else:
         for kk in range(nb):
-            a = mt[0, 0, kk]
-            b = mt[0, 1, kk]
-            c = mt[0, 2, kk]
-            dd = mt[0, 3, kk]
-            e = mt[0, 4, kk]
-            c00 = c * e - dd * dd
-            c01 = -(b * e - c * dd)
-            c02 = b * dd - c * c
-            c11 = a * e - c * c
-            c12 = -(a * dd - b * c)
-            c22 = a * c - b * b
-            rd = 1.0 / (a * c00 + b * c01 + c * c02)
+            c00, c01, c02, c11, c12, c22, det = _cofactors3(
+                mt[0, 0, kk], mt[0, 1, kk], mt[0, 2, kk], mt[0, 3, kk], mt[0, 4, kk]
+            )
+            rd = 1.0 / det
             c00 *= rd
             c01 *= rd
             c02 *= rd
@@ -272,10 +270,8 @@ def _block_fits(nb, k0, mt, cnt, distinct, degree, singular, beta, inv, deg_used
         else:
             c = mt[0, 2, kk]
             e = mt[0, 4, kk]
-            careful = not (a > 0.0) or cnt[kk] <= 0 or distinct[kk] < 3 or not (abs(
-                a * (c * e - mt[0, 3, kk] ** 2) - mt[0, 1, kk] * (mt[0, 1, kk] * e - c * mt[0, 3, kk])
-                + c * (mt[0, 1, kk] * mt[0, 3, kk] - c * c)
-            ) > singular * a * c * e)
+            det = _cofactors3(a, mt[0, 1, kk], c, mt[0, 3, kk], e)[6]
+            careful = not (a > 0.0) or cnt[kk] <= 0 or distinct[kk] < 3 or not (abs(det) > singular * a * c * e)
         if careful:
             for j in range(2 * degree + 1):
                 s[j] = mt[0, j, kk]
