@@ -19,6 +19,7 @@ References
 from __future__ import annotations
 
 import math
+from functools import cached_property
 from dataclasses import dataclass, field
 from typing import Callable
 
@@ -83,7 +84,7 @@ class Kernel:
     def __call__(self, u: np.ndarray | float) -> np.ndarray:
         return self.function(np.asarray(u, dtype=float))
 
-    @property
+    @cached_property
     def vanishes_at_edge(self) -> bool:
         """True when ``K(+-1) == 0`` so points exactly on the edge carry no weight."""
         return bool(np.isfinite(self.support) and float(self.function(np.array([1.0]))[0]) == 0.0)
