@@ -102,15 +102,47 @@ def test_numpy_and_compiled_paths_agree(kernel: str) -> None:
     from estimators import sums
 
     rng = np.random.default_rng(7)
-    x = np.sort(1.7e12 + rng.uniform(0, 5e8, 500))
-    q = np.stack([rng.uniform(0.5, 2, 500), rng.normal(size=500)], axis=1)
-    t = np.sort(np.concatenate([x[::3], [x[0] - 1e7, x[-1] + 1e9]]))
+    x = np.sort(1.7e12 + rng.uniform(0, 5e8, 2000))
+    q = np.stack([rng.uniform(0.5, 2, 2000), rng.normal(size=2000)], axis=1)
+    t = np.sort(np.concatenate([x, [x[0] - 1e7, x[-1] + 1e9]]))  # several query blocks of the sweep
     k = KERNELS[kernel]
     if k.shape is None:
         pytest.skip("the gaussian has a single (fast Gauss transform) exact path")
     fast = sums.moment_sums(x, q, t, k, 3e7, 4)
     ref = sums._compact_moments(x, q, t, k, k.shape, 3e7, 4)
     assert np.max(np.abs(fast - ref)) <= 1e-11 * np.max(np.abs(ref))
+
+
+@pytest.mark.parametrize("kernel", [k for k, spec in KERNELS.items() if spec.shape is not None])
+@pytest.mark.parametrize("degree", [0, 1, 2])
+def test_compiled_fit_across_query_blocks_matches_dense_formula(kernel: str, degree: int) -> None:
+    """The fused sweep finishes queries in blocks; empty windows and both data clusters span several blocks."""
+    from estimators._compiled import _QUERY_BLOCK
+
+    rng = np.random.default_rng(11)
+    x = np.concatenate([rng.uniform(0, 3, 700), rng.uniform(7, 10, 700)])
+    y = np.cos(x) + rng.normal(0, 0.2, x.size)
+    h = 0.4
+    t = np.sort(np.concatenate([x, np.linspace(-0.5, 10.5, 900)]))
+    assert t.size > 3 * _QUERY_BLOCK
+    s = fit(x, y, kernel=kernel, degree=degree, bandwidth=h, engine="exact")
+    got = s.predict(t)
+    ref, _, used, _ = dense_local_fit(x, y, np.ones_like(x), t, KERNELS[kernel], h, degree)
+    assert np.array_equal(s.solve(t).degree_used, used)
+    assert np.array_equal(np.isnan(got), np.isnan(ref))
+    assert np.isnan(ref).sum() > 100  # the gap gives empty windows in more than one block
+    xs = np.sort(x)
+    inside = (np.searchsorted(xs, t - h, "left") < np.searchsorted(xs, t, "left")) & (
+        np.searchsorted(xs, t, "right") < np.searchsorted(xs, t + h, "right")
+    )
+    tol = (1e-9 if degree < 2 else 1e-7) * np.ptp(y)
+    assert np.max(np.abs(got[inside] - ref[inside])) <= tol
+    fitted = s.fitted()  # the data points themselves: 1400 queries, three blocks
+    ref_at_data = dense_local_fit(x, y, np.ones_like(x), x, KERNELS[kernel], h, degree)[0]
+    xin = (np.searchsorted(xs, x - h, "left") < np.searchsorted(xs, x, "left")) & (
+        np.searchsorted(xs, x, "right") < np.searchsorted(xs, x + h, "right")
+    )
+    assert np.max(np.abs(fitted[xin] - ref_at_data[xin])) <= tol
 
 
 @pytest.mark.parametrize("kernel", ["gaussian", "epanechnikov", "tricube"])
