@@ -32,7 +32,8 @@ import math
 import numpy as np
 from numba import njit
 
-__all__ = ["window_moments", "window_fit", "solve_local", "linear_bin", "keys_interpolate", "gather_sorted"]
+__all__ = ["window_moments", "window_fit", "solve_local", "linear_bin", "keys_interpolate", "gather_sorted",
+           "gauss_tile_moments", "gauss_translate", "gauss_evaluate"]
 
 # reassociation and fused multiply-add only: no assumptions about NaN or infinity
 _FAST = {"reassoc", "contract"}
@@ -512,3 +513,72 @@ def gather_sorted(x, y, order, xs, ys, distinct_prefix):  # pragma: no cover - c
             count += 1
         prev = xi
         distinct_prefix[i + 1] = count
+
+
+@njit(cache=True, nogil=True, error_model="numpy", fastmath=_FAST)
+def gauss_tile_moments(v, starts, q, fact, moments):  # pragma: no cover - compiled
+    """Fast Gauss transform sources: ``moments[s, c, j] = sum_{i in tile s} q[i, c] v_i^j / j!``.
+
+    ``starts`` holds each tile's first index in the sorted data; ``v`` the
+    offsets from the tile centres in bandwidths.
+    """
+    ntiles, ncol, nterms = moments.shape
+    n = v.size
+    for s in range(ntiles):
+        stop = starts[s + 1] if s + 1 < ntiles else n
+        for c in range(ncol):
+            for j in range(nterms):
+                moments[s, c, j] = 0.0
+        for i in range(starts[s], stop):
+            for c in range(ncol):
+                p = q[i, c]
+                for j in range(nterms):
+                    moments[s, c, j] += p
+                    p *= v[i]
+        for c in range(ncol):
+            for j in range(nterms):
+                moments[s, c, j] /= fact[j]
+
+
+@njit(cache=True, nogil=True, error_model="numpy", fastmath=_FAST)
+def gauss_translate(tiles, moments, target_tiles, translations, reach, local):  # pragma: no cover - compiled
+    """Fast Gauss transform: local expansions ``local[t, c, k] = sum_D sum_j A_D[k, j] moments[S, c, j]``.
+
+    Sums over the source tiles ``S`` within ``reach`` tiles of each target tile
+    (both sorted); ``translations[D + reach]`` is ``A_D`` (zero where ``j + k >= N``).
+    """
+    ns = tiles.size
+    ncol, nterms = moments.shape[1], moments.shape[2]
+    first = 0
+    for ti in range(target_tiles.size):
+        for c in range(ncol):
+            for k in range(nterms):
+                local[ti, c, k] = 0.0
+        tt = target_tiles[ti]
+        while first < ns and tiles[first] < tt - reach:
+            first += 1
+        s = first
+        while s < ns and tiles[s] <= tt + reach:
+            amat = translations[int(tiles[s] - tt) + reach]
+            for c in range(ncol):
+                for k in range(nterms):
+                    acc = 0.0
+                    for j in range(nterms - k):
+                        acc += amat[k, j] * moments[s, c, j]
+                    local[ti, c, k] += acc
+            s += 1
+
+
+@njit(cache=True, nogil=True, error_model="numpy", fastmath=_FAST)
+def gauss_evaluate(local, which, w, fact, nderiv, out):  # pragma: no cover - compiled
+    """``out[i, c, k] = d^k/dw^k sum_n local[which[i], c, n] w^n`` at ``w = w[i]`` (Horner's rule)."""
+    ncol, nterms = local.shape[1], local.shape[2]
+    for i in range(w.size):
+        row = which[i]
+        wi = w[i]
+        for c in range(ncol):
+            for k in range(nderiv + 1):
+                acc = 0.0
+                for n in range(nterms - 1, k - 1, -1):
+                    acc = acc * wi + local[row, c, n] * (fact[n] / fact[n - k])
+                out[i, c, k] = acc

@@ -315,11 +315,7 @@ class _GaussSources:
         self.tiles, starts = np.unique(src_tile, return_index=True)
         self.fact = np.array([math.factorial(j) for j in range(2 * N_TERMS)], dtype=float)
         self.moments = np.empty((self.tiles.size, ncol, N_TERMS))
-        for c in range(ncol):
-            col = q[:, c].astype(float, copy=True)
-            for j in range(N_TERMS):
-                self.moments[:, c, j] = np.add.reduceat(col, starts) / self.fact[j]
-                col *= v
+        _compiled.gauss_tile_moments(np.ascontiguousarray(v), starts, np.ascontiguousarray(q, dtype=float), self.fact, self.moments)
 
     def transform(self, points: np.ndarray, nderiv: int) -> np.ndarray:
         """``d^k/dw^k sum_i q_i exp(-(x_i - t)^2 / 2h^2)`` in units of ``h``, ``k <= nderiv``.
@@ -327,8 +323,6 @@ class _GaussSources:
         Equals ``sum_i q_i He_k(u_i) exp(-u_i^2/2)`` with ``u_i = (x_i - t)/h``.
         Returns shape ``(m, ncol, nderiv + 1)``.
         """
-        N = N_TERMS
-        fact = self.fact
         m = points.size
         out = np.zeros((m, self.ncol, nderiv + 1))
         if m == 0:
@@ -337,30 +331,10 @@ class _GaussSources:
         w_all = (points - self.origin) / self.h - (tgt_tile_all + 0.5)
         ttiles, inverse = np.unique(tgt_tile_all, return_inverse=True)
         reach = int(math.ceil(GAUSSIAN_CUTOFF)) + 1
-        local = np.zeros((ttiles.size, self.ncol, N))
-        tiles = self.tiles
-        for off in range(-reach, reach + 1):
-            want = ttiles + off
-            pos = np.searchsorted(tiles, want)
-            pos_c = np.minimum(pos, tiles.size - 1)
-            hit = tiles[pos_c] == want
-            if not hit.any():
-                continue
-            amat = _TRANSLATIONS[off + reach]
-            src = self.moments[pos_c[hit]]  # (hits, ncol, N_j)
-            local[hit] += np.einsum("kj,scj->sck", amat, src)
-
+        local = np.empty((ttiles.size, self.ncol, N_TERMS))
+        _compiled.gauss_translate(self.tiles, self.moments, ttiles, _TRANSLATIONS, reach, local)
         # derivative k of sum_n L_n w^n is sum_n L_n n!/(n-k)! w^(n-k)
-        for start in range(0, m, _CHUNK):
-            sl = slice(start, min(start + _CHUNK, m))
-            w = w_all[sl]
-            coeffs = local[inverse[sl]]  # (chunk, ncol, N)
-            wp = np.ones((w.size, N))
-            for j in range(1, N):
-                wp[:, j] = wp[:, j - 1] * w
-            for k in range(nderiv + 1):
-                scale = fact[k:N] / fact[: N - k]
-                out[sl, :, k] = np.einsum("mcn,mn->mc", coeffs[:, :, k:] * scale, wp[:, : N - k])
+        _compiled.gauss_evaluate(local, inverse.astype(np.int64).ravel(), np.ascontiguousarray(w_all), self.fact, nderiv, out)
         return out
 
 
