@@ -337,11 +337,15 @@ class Smoother:
         t = np.asarray(points, dtype=float).ravel()
         return (t < self.x_min) | (t > self.x_max)
 
+    @property
+    def _data_sorted(self) -> np.ndarray:
+        """All data locations in sorted order (zero weights included)."""
+        return self.sample.xs if self.sample.n_used == self.sample.n else self.sample.x[self.sample.order]
+
     @cached_property
     def _at_data_sorted(self) -> LocalSolution:
         """Local fits at the data points in sorted order (all points, zero weights included)."""
-        sorted_x = self.sample.xs if self.sample.n_used == self.sample.n else self.sample.x[self.sample.order]
-        return self._solve_sorted(sorted_x)
+        return self._solve_sorted(self._data_sorted)
 
     def _unsort(self, values: np.ndarray) -> np.ndarray:
         out = np.empty_like(values)
@@ -377,13 +381,20 @@ class Smoother:
     @cached_property
     def variance_df(self) -> float:
         """``tr(L^T W L W^{-1})``, the second degrees-of-freedom term for the residual variance."""
-        sol = self._at_data
+        # in sorted order: the sum does not depend on the order of the points
+        sol = self._at_data_sorted
         p = self.degree
-        q2 = self.moments(self.sample.x, self.sample.ws, 2 * p, power=2)[:, 0, :]
+        points = self._data_sorted
+        plan = MomentPlan(
+            self.sample.xs, self.sample.ws, self.kernel_spec, self.bandwidth, 2 * p, power=2,
+            engine=self._engine_for(points.size),
+        )
+        q2 = plan(points)[0][:, 0, :]
         idx = np.arange(p + 1)
         qmat = q2[:, idx[:, None] + idx[None, :]]
         a = sol.inv[:, 0, :]
-        return float(np.nansum(self.sample.w * np.einsum("mi,mij,mj->m", a, qmat, a)))
+        w_sorted = self.sample.w[self.sample.order]
+        return float(np.nansum(w_sorted * np.einsum("mi,mij,mj->m", a, qmat, a)))
 
     @cached_property
     def residual_scale(self) -> float:
