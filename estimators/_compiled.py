@@ -1,24 +1,27 @@
-"""Compiled sliding-window sweeps for compact kernels (numba, cached on disk).
+"""Compiled loops of the numerical core (numba, cached on disk).
 
-One sweep serves every compact kernel. Queries are processed in ascending
-order; the window ``[lo, hi)`` (and, for kernels in ``|u|``, the split point
-``mid`` at the query) only moves forward.
+Most of this module is one sliding-window sweep that serves every compact
+kernel; the rest are the loops of the fast Gauss transform, linear binning,
+cubic interpolation and the one-pass gather of a sorted sample.
+
+The sweep processes queries in ascending order; the window ``[lo, hi)`` (and,
+for kernels in ``|u|``, the split point ``mid`` at the query) only moves forward.
 
 * The running sums are power sums ``sum q v^a`` (and, for the cosine kernel,
   ``sum q cos(omega v) v^j``, ``sum q sin(omega v) v^j``) of the tile-local
   coordinate ``v = (x - c) / h`` about the centre ``c`` of the query's tile
-  (width ``h``). Every stored term is at most ``1.5**a`` in size whatever the
-  location and scale of ``x``.
+  (width ``h``, or ``h / 2`` for high orders, see ``_TILE_*``), so every stored
+  term is bounded whatever the location and scale of ``x``.
 * When the query enters a new tile the sums are recomputed from scratch about
   the new centre (cost: the window, so ``O(n)`` in all); inside a tile points
   are added and removed as the window slides.
-* At a query ``t`` with ``d = (t - c) / h`` (``|d| <= 1/2``) the kernel is
-  rewritten as a polynomial in ``v`` by a Taylor shift, ``K(v - d) = sum_b
-  g_b(d) v^b`` (angle addition for the cosine), which gives the moments in
-  powers of ``v``; a binomial shift of those ``order + 1`` numbers gives the
-  moments in powers of ``u = v - d``.
-* :func:`window_fit` solves the local least-squares system at once, so no
-  moment array is written.
+* At a query ``t`` with ``d = (t - c) / h`` the kernel is rewritten as a
+  polynomial in ``v`` by a Taylor shift, ``K(v - d) = sum_b g_b(d) v^b`` (angle
+  addition for the cosine), which gives the moments in powers of ``v``; a
+  binomial shift of those ``order + 1`` numbers gives the moments in powers of
+  ``u = v - d``. This part runs per block of queries, vectorised across them.
+* :func:`window_fit` solves the local least-squares systems in the same pass,
+  so no moment array is written.
 
 Compilation results are cached next to this file (``cache=True``); the
 installer warms the cache (``python -m estimators.warmup``) so a service
