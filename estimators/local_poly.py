@@ -27,7 +27,7 @@ import numpy as np
 from .cautions import Caution
 from .kernels import Kernel, get_kernel
 from . import _compiled
-from .sums import MomentPlan, binned_grid_size, compiled_shape, moment_sums, window_counts
+from .sums import MomentPlan, binned_grid_allowed, binned_grid_size, compiled_shape, moment_sums, window_counts
 
 if TYPE_CHECKING:  # pragma: no cover
     from .bandwidth import Selection
@@ -172,21 +172,27 @@ def _check_bandwidth(bandwidth: Any) -> float:
 
 
 def choose_engine(engine: str, kernel: Kernel, sample: SortedSample, bandwidth: float, m: int) -> str:
-    """Resolve ``engine="auto"``.
+    """Resolve ``engine`` for ``m`` query points.
 
-    Compact kernels always use the exact fast sums (they are as fast as
-    binning and have no binning error). The gaussian uses the binned path when
-    there are at least ``20000`` points and its grid is smaller than a quarter
-    of ``max(n, m)``; at ``h / 256`` spacing its measured error stays below
-    ``1e-6`` of the range of ``y``. Otherwise the exact fast Gauss transform.
+    ``"auto"``: compact kernels always use the exact fast sums (they are as
+    fast as binning and have no binning error). The gaussian uses the binned
+    path when there are at least ``20000`` points and its grid is smaller than
+    a quarter of ``max(n, m)``; at ``h / 256`` spacing its measured error stays
+    below ``1e-6`` of the range of ``y``. Otherwise the exact fast Gauss transform.
+
+    ``"binned"`` is honoured unless its grid would exceed ``max(n, m)`` by more
+    than :data:`estimators.sums.BINNED_GRID_SLACK` nodes (a bandwidth tiny
+    against the x range); the exact path, faster there, is used instead.
     """
     if engine not in ENGINES:
         raise ValueError(f"unknown engine {engine!r}; choose one of {', '.join(ENGINES)}")
-    if engine != "auto":
+    if engine == "exact":
         return engine
+    size = binned_grid_size(float(sample.xs[0]), float(sample.xs[-1]), kernel, bandwidth)
+    if engine == "binned":
+        return "binned" if binned_grid_allowed(size, sample.n_used, m) else "exact"
     if kernel.shape is not None:
         return "exact"
-    size = binned_grid_size(float(sample.xs[0]), float(sample.xs[-1]), kernel, bandwidth)
     if sample.n_used >= _BINNED_MIN_N and size * 4 <= max(sample.n_used, m):
         return "binned"
     return "exact"
@@ -261,9 +267,9 @@ class Smoother:
 
     # -- core local solve --------------------------------------------------
     def _engine_for(self, m: int) -> str:
-        if self.engine_request == "auto":
-            return choose_engine("auto", self.kernel_spec, self.sample, self.bandwidth, m)
-        return self.engine
+        if self.engine_request == "exact":
+            return "exact"
+        return choose_engine(self.engine_request, self.kernel_spec, self.sample, self.bandwidth, m)
 
     def moments(self, points: np.ndarray, values: np.ndarray, order: int, power: int = 1) -> np.ndarray:
         """Windowed sums ``sum_i q_i K(u_i)^power u_i^k`` over the sorted sources (see :mod:`sums`)."""

@@ -401,6 +401,16 @@ def binned_grid_size(x_min: float, x_max: float, kernel: Kernel, bandwidth: floa
     return int(math.ceil(cells)) + 4
 
 
+#: a binned grid beyond the data size by more than this many nodes is not built: the exact
+#: path is then faster, and the grid's memory would grow with 1 / bandwidth, not with the data
+BINNED_GRID_SLACK = 2**20
+
+
+def binned_grid_allowed(size: int, n: int, m: int) -> bool:
+    """Whether a binned grid of ``size`` nodes is worth building for ``n`` sources and ``m`` queries."""
+    return size <= max(n, m) + BINNED_GRID_SLACK
+
+
 class _BinnedPlan:
     """Binned moments: linear binning, FFT convolution onto the grid once; cubic interpolation per call."""
 

@@ -179,7 +179,7 @@ from scipy.special import ndtri
 from scipy.stats import t as student_t
 
 from .cautions import Caution
-from .sums import effective_radius, window_bounds
+from .sums import binned_grid_allowed, effective_radius, window_bounds
 
 if TYPE_CHECKING:  # pragma: no cover
     from .local_poly import Smoother
@@ -784,7 +784,7 @@ def _make_nodes(s: "Smoother", t: np.ndarray, replicates: int, engine: str) -> _
     span = float(xr[-1] - xr[0]) if xr.size else 0.0
     grid_size = int(math.ceil(span / step)) + 2 if (xr.size and step is not None) else 0
     use_grid = step is not None and (
-        engine == "binned"
+        (engine == "binned" and binned_grid_allowed(grid_size, xr.size, t.size))
         or (engine == "auto" and xr.size * replicates > _EXACT_MAX and grid_size * 4 <= xr.size)
     )
     if not use_grid or xr.size == 0:

@@ -49,3 +49,26 @@ def test_too_few_distinct_x_drops_degree() -> None:
     assert list(sol.degree_used) == [1, 2]
     # the linear fit through the two group means (1.1 at 0, 2.1 at 1) gives 1.6 at 0.5
     assert s.predict([0.5])[0] == pytest.approx(1.6)
+
+
+def test_binned_engine_is_honoured_unless_its_grid_dwarfs_the_data() -> None:
+    """engine="binned" keeps its grid near the data size (Wand 1994 binning is meant for h >> spacing)."""
+    rng = np.random.default_rng(5)
+    x = rng.uniform(0.0, 100.0, 2000)
+    y = np.sin(x / 7.0)
+    assert fit(x, y, bandwidth=5.0, engine="binned").engine == "binned"
+    tiny = fit(x, y, bandwidth=1e-4, engine="binned")  # 256 nodes per bandwidth: 2.6e8 nodes
+    assert tiny.engine == "exact"
+    np.testing.assert_array_equal(tiny.predict(x[:50]), fit(x, y, bandwidth=1e-4, engine="exact").predict(x[:50]))
+
+
+def test_binned_bootstrap_grid_is_not_built_when_it_dwarfs_the_data() -> None:
+    """bands(engine="binned") with a bandwidth tiny against the x range uses the exact kernel rows."""
+    rng = np.random.default_rng(6)
+    x = rng.uniform(0.0, 100.0, 400)
+    y = np.sin(x / 7.0) + rng.normal(0.0, 0.1, x.size)
+    s = fit(x, y, kernel="epanechnikov", bandwidth=1e-4)  # grid at h / 128 would hold 1e8 nodes
+    grid = np.sort(x[:20])
+    binned = s.bands(grid, replicates=50, seed=1, engine="binned")
+    exact = s.bands(grid, replicates=50, seed=1, engine="exact")
+    np.testing.assert_array_equal(binned.se, exact.se)

@@ -87,3 +87,18 @@ def test_automatic_bandwidth_on_a_short_series_is_fitted(api: Harness, n: int) -
     chosen = response.json()["bandwidth"]
     assert chosen["selector"] == "gcv"
     assert min(chosen["candidates"]) <= chosen["value"] <= max(chosen["candidates"])
+
+
+@pytest.mark.parametrize("bands", [None, {"replicates": 60, "seed": 0}])
+def test_binned_engine_with_a_tiny_bandwidth_is_answered_by_the_exact_path(api: Harness, bands: dict[str, Any] | None) -> None:
+    """BINNED-HUGE-GRID (fixed): engine "binned" with h = 0.001 over an x range of 326 built a grid of
+    83 million nodes (256 per bandwidth) and ran past the 30 s deadline; found by the model-property test."""
+    body: dict[str, Any] = {"x": [0.0, 0.0, 326.0, 0.0, 0.0, 0.0], "y": [0.0, 0.5, 0.0, 0.0, 0.0, 0.0], "bandwidth": 0.001, "engine": "binned"}
+    if bands is not None:
+        body["bands"] = bands
+    response = api.post("/v1/smooth", json=body)
+    assert response.status_code == 200, response.text[:300]
+    doc = response.json()
+    assert doc["diagnostics"]["engine"] == "exact"
+    exact = api.post("/v1/smooth", json={**body, "engine": "exact"}).json()
+    assert doc["curve"]["estimate"] == exact["curve"]["estimate"]
