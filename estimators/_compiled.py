@@ -210,20 +210,26 @@ def _ipow(x, k):  # pragma: no cover - compiled
 
 
 @njit(cache=True, nogil=True, error_model="numpy", fastmath=_FAST)
-def _block_fits(nb, k0, mt, cnt, distinct, degree, singular, beta, inv, deg_used, s, r):  # pragma: no cover
-    """Solve the local systems of a block; the full-degree solve is vectorised, other cases go point by point."""
+def _block_fits(nb, k0, mt, cnt, distinct, degree, singular, beta, inv, deg_used, careful, s, r):  # pragma: no cover
+    """Solve the local systems of a block; the full-degree solve is vectorised, other cases go point by point.
+
+    ``careful`` (scratch, one flag a query) marks empty, degenerate and near-singular windows.
+    """
     if degree == 0:
         for kk in range(nb):
             a = mt[0, 0, kk]
             inv[k0 + kk, 0, 0] = 1.0 / a
             beta[k0 + kk, 0] = mt[1, 0, kk] / a
             deg_used[k0 + kk] = 0
+            careful[kk] = not (a > 0.0) or cnt[kk] <= 0
     elif degree == 1:
         for kk in range(nb):
             a = mt[0, 0, kk]
             b = mt[0, 1, kk]
             c = mt[0, 2, kk]
-            rd = 1.0 / (a * c - b * b)
+            det = a * c - b * b
+            careful[kk] = not (a > 0.0) or cnt[kk] <= 0 or distinct[kk] < 2 or not (abs(det) > singular * a * c)
+            rd = 1.0 / det
             i00 = c * rd
             i01 = -b * rd
             i11 = a * rd
@@ -236,9 +242,11 @@ def _block_fits(nb, k0, mt, cnt, distinct, degree, singular, beta, inv, deg_used
             deg_used[k0 + kk] = 1
     else:
         for kk in range(nb):
-            c00, c01, c02, c11, c12, c22, det = _cofactors3(
-                mt[0, 0, kk], mt[0, 1, kk], mt[0, 2, kk], mt[0, 3, kk], mt[0, 4, kk]
-            )
+            a = mt[0, 0, kk]
+            c = mt[0, 2, kk]
+            e = mt[0, 4, kk]
+            c00, c01, c02, c11, c12, c22, det = _cofactors3(a, mt[0, 1, kk], c, mt[0, 3, kk], e)
+            careful[kk] = not (a > 0.0) or cnt[kk] <= 0 or distinct[kk] < 3 or not (abs(det) > singular * a * c * e)
             rd = 1.0 / det
             c00 *= rd
             c01 *= rd
@@ -264,19 +272,7 @@ def _block_fits(nb, k0, mt, cnt, distinct, degree, singular, beta, inv, deg_used
             deg_used[k0 + kk] = 2
     # empty or degenerate windows and near-singular systems: the careful solve, point by point
     for kk in range(nb):
-        a = mt[0, 0, kk]
-        if degree == 0:
-            careful = not (a > 0.0) or cnt[kk] <= 0
-        elif degree == 1:
-            c = mt[0, 2, kk]
-            det = a * c - mt[0, 1, kk] ** 2
-            careful = not (a > 0.0) or cnt[kk] <= 0 or distinct[kk] < 2 or not (abs(det) > singular * a * c)
-        else:
-            c = mt[0, 2, kk]
-            e = mt[0, 4, kk]
-            det = _cofactors3(a, mt[0, 1, kk], c, mt[0, 3, kk], e)[6]
-            careful = not (a > 0.0) or cnt[kk] <= 0 or distinct[kk] < 3 or not (abs(det) > singular * a * c * e)
-        if careful:
+        if careful[kk]:
             for j in range(2 * degree + 1):
                 s[j] = mt[0, j, kk]
             for j in range(degree + 1):
@@ -330,6 +326,7 @@ def _sweep(
     g = np.empty((max(deg_k, 1) + 1, nbuf))
     mv = np.empty((ncol, order + 1, nbuf))
     mt = np.empty((ncol, order + 1, nbuf))
+    careful = np.empty(nbuf, dtype=np.bool_)
     s_pt = np.empty(5)
     r_pt = np.empty(3)
     inv_h = 1.0 / h
@@ -407,7 +404,7 @@ def _sweep(
                         for j in range(order + 1):
                             out[k0 + i, c, j] = mt[c, j, i] if (j <= orders[c] and not empty) else 0.0
             else:
-                _block_fits(kk, k0, mt, cnt, distinct, fit_degree, singular, beta, inv, deg_used, s_pt, r_pt)
+                _block_fits(kk, k0, mt, cnt, distinct, fit_degree, singular, beta, inv, deg_used, careful, s_pt, r_pt)
             kk = 0
 
 
