@@ -22,7 +22,6 @@ Run: ``python -m tests.bench.bench_bootstrap [--n 1e5] [--replicates 1000]``.
 from __future__ import annotations
 
 import argparse
-import time
 import tracemalloc
 from typing import Callable
 
@@ -32,17 +31,10 @@ from estimators import fit, select_bandwidth
 from estimators.uncertainty import bands
 
 from .machine import describe
+from .timing import best_of
 
 POINTS = 200
 
-
-def _best(fn: Callable[[], object], repeat: int) -> float:
-    best = float("inf")
-    for _ in range(repeat):
-        t0 = time.perf_counter()
-        fn()
-        best = min(best, time.perf_counter() - t0)
-    return best
 
 
 def _peak(fn: Callable[[], object]) -> int:
@@ -72,13 +64,13 @@ def run(n: int, replicates: int, repeat: int = 5) -> list[dict[str, object]]:
         ):
             bands(s, points, replicates=replicates, **kw)  # type: ignore[arg-type]  # warm: residuals, noise scale
             if label == "wild":
-                row["sort"] = _best(lambda: np.argsort(x), repeat)
-                row[label] = _best(lambda: bands(s, points, replicates=replicates, **kw), repeat)  # type: ignore[arg-type]
-                row["sort_after"] = _best(lambda: np.argsort(x), repeat)
+                row["sort"] = best_of(lambda: np.argsort(x), repeat)
+                row[label] = best_of(lambda: bands(s, points, replicates=replicates, **kw), repeat)  # type: ignore[arg-type]
+                row["sort_after"] = best_of(lambda: np.argsort(x), repeat)
             else:
-                row[label] = _best(lambda: bands(s, points, replicates=replicates, **kw), 3)  # type: ignore[arg-type]
-        row["fit_at_data"] = _best(lambda: fit(x, y, kernel=kernel, bandwidth=h).fitted(), repeat)
-        row["end_to_end"] = _best(
+                row[label] = best_of(lambda: bands(s, points, replicates=replicates, **kw), 3)  # type: ignore[arg-type]
+        row["fit_at_data"] = best_of(lambda: fit(x, y, kernel=kernel, bandwidth=h).fitted(), repeat)
+        row["end_to_end"] = best_of(
             lambda: fit(x, y, kernel=kernel, bandwidth=h).bands(points, replicates=replicates), repeat
         )
         row["peak_1x"] = _peak(lambda: s.bands(points, replicates=replicates, seed=1)) / (8.0 * n)

@@ -19,17 +19,10 @@ import numpy as np
 from estimators import KERNELS, fit
 
 from .machine import describe
+from .timing import best_of
 
 DENSE_BUDGET_S = 30.0
 
-
-def _best(fn, repeat: int) -> float:  # type: ignore[no-untyped-def]
-    best = float("inf")
-    for _ in range(repeat):
-        t0 = time.perf_counter()
-        fn()
-        best = min(best, time.perf_counter() - t0)
-    return best
 
 
 def dense_fit(x: np.ndarray, y: np.ndarray, kernel: str, h: float, degree: int = 1, chunk: int = 512) -> np.ndarray:
@@ -69,13 +62,13 @@ def run(max_n: float = 1e7) -> list[dict[str, object]]:
         x, y = _data(n)
         h = 0.002 * 100.0  # 0.2% of the x range
         repeat = 5 if n <= 1e5 else (3 if n <= 1e6 else 1)
-        t_sort = _best(lambda: np.argsort(x), repeat)
+        t_sort = best_of(lambda: np.argsort(x), repeat)
         row: dict[str, object] = {"n": n, "argsort_s": t_sort}
         for kernel in ("epanechnikov", "gaussian"):
             for engine in ("auto", "exact", "binned"):
                 fn = lambda: fit(x, y, kernel=kernel, bandwidth=h, engine=engine).fitted()  # noqa: E731
                 fn()  # warm caches (compiled code is already cached on disk)
-                row[f"{kernel}_{engine}_s"] = _best(fn, repeat)
+                row[f"{kernel}_{engine}_s"] = best_of(fn, repeat)
         bh = 0.05 * 100.0  # a typical bandwidth for the dense comparison (windows of 10% of the data)
         predicted = None if dense_rate is None else dense_rate * n * n
         if predicted is None or predicted < DENSE_BUDGET_S:
@@ -84,7 +77,7 @@ def run(max_n: float = 1e7) -> list[dict[str, object]]:
             td = time.perf_counter() - t0
             dense_rate = td / (n * n)
             row["dense_s"] = td
-            row["fast_at_dense_h_s"] = _best(lambda: fit(x, y, kernel="epanechnikov", bandwidth=bh).fitted(), repeat)
+            row["fast_at_dense_h_s"] = best_of(lambda: fit(x, y, kernel="epanechnikov", bandwidth=bh).fitted(), repeat)
         if n <= 1e6:
             row["peak_arrays_epanechnikov"] = _peak_arrays(
                 lambda: fit(x, y, kernel="epanechnikov", bandwidth=h).fitted(), n
@@ -98,7 +91,7 @@ def run_kernels(n: int = 1_000_000) -> list[tuple[str, float]]:
     """Default engine for every compact kernel at ``n`` (h = 0.2% of the range), as ratios to argsort."""
     x, y = _data(n)
     h = 0.002 * 100.0
-    t_sort = _best(lambda: np.argsort(x), 3)
+    t_sort = best_of(lambda: np.argsort(x), 3)
     out = []
     for kernel, spec in KERNELS.items():
         if spec.shape is None:
@@ -106,7 +99,7 @@ def run_kernels(n: int = 1_000_000) -> list[tuple[str, float]]:
         for degree in (0, 1, 2):
             fn = lambda: fit(x, y, kernel=kernel, degree=degree, bandwidth=h).fitted()  # noqa: E731
             fn()
-            out.append((f"{kernel}, degree {degree}", _best(fn, 3) / t_sort))
+            out.append((f"{kernel}, degree {degree}", best_of(fn, 3) / t_sort))
     return out
 
 
