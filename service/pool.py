@@ -88,10 +88,13 @@ class _Worker:
     def pid(self) -> int | None:
         return self.process.pid
 
-    async def roundtrip(self, job: Job) -> Outcome:
-        payload = pickle.dumps(job, protocol=pickle.HIGHEST_PROTOCOL)
+    def send(self, payload: bytes) -> None:
+        """Queue one framed job on the socket (non-blocking; the transport sends what it can now)."""
         self.writer.write(_frame(payload))
         self.writer.write(payload)
+
+    async def receive(self) -> Outcome:
+        """Wait for the answer to the job last sent (flow control first, then the framed outcome)."""
         await self.writer.drain()
         (size,) = _SMALL.unpack(await self.reader.readexactly(_SMALL.size))
         if size == -1:
@@ -143,7 +146,7 @@ class WorkerPool:
         self._threads = ThreadPoolExecutor(max_workers=size + 2, thread_name_prefix="bandwise-pool")
         self._idle: list[_Worker] = []
         self._all: set[_Worker] = set()
-        self._waiters: collections.deque[asyncio.Future[_Worker]] = collections.deque()
+        self._waiters: collections.deque[tuple[asyncio.Future[_Worker], bytes]] = collections.deque()
         self._loop: asyncio.AbstractEventLoop | None = None
         self._closed = False
         self._starting = 0
@@ -187,7 +190,7 @@ class WorkerPool:
             return
         self._closed = True
         while self._waiters:
-            fut = self._waiters.popleft()
+            fut, _ = self._waiters.popleft()
             if not fut.done():
                 fut.set_exception(PoolClosed())
         workers, self._all, self._idle = list(self._all), set(), []
@@ -272,12 +275,19 @@ class WorkerPool:
     # ------------------------------------------------------------ running
 
     def _release(self, worker: _Worker) -> None:
+        """Give a free worker to the longest-waiting request, or park it.
+
+        The waiting request's job is written to the worker here and now, not
+        when that request's task next runs: the worker starts computing while
+        the event loop is still busy answering the request it just finished.
+        """
         if self._closed:
             worker.kill("shutdown")
             return
         while self._waiters:
-            fut = self._waiters.popleft()
+            fut, payload = self._waiters.popleft()
             if not fut.done():
+                worker.send(payload)
                 fut.set_result(worker)
                 return
         self._idle.append(worker)
@@ -291,13 +301,15 @@ class WorkerPool:
             self._replace(worker, "died")
         return None
 
-    async def _acquire(self, timeout: float) -> _Worker:
+    async def _acquire(self, payload: bytes, timeout: float) -> _Worker:
+        """A worker that has been sent ``payload``: an idle one at once, else the next one released."""
         worker = self._pop_idle()
         if worker is not None:
+            worker.send(payload)
             return worker
         assert self._loop is not None
         fut: asyncio.Future[_Worker] = self._loop.create_future()
-        self._waiters.append(fut)
+        self._waiters.append((fut, payload))
         self.waiting += 1
         try:
             async with asyncio.timeout(timeout):
@@ -309,7 +321,9 @@ class WorkerPool:
             raise DeadlineExceeded() from None
         except asyncio.CancelledError:
             if fut.done() and not fut.cancelled() and fut.exception() is None:
-                self._release(fut.result())
+                # the job is already on its way to this worker: its answer would
+                # arrive out of step with the next job, so the worker is replaced
+                self._replace(fut.result(), "cancelled")
             else:
                 fut.cancel()
             raise
@@ -336,13 +350,14 @@ class WorkerPool:
             raise PoolClosed()
         if not self._idle and self.waiting >= self.queue_size:
             raise Overloaded()
+        payload = pickle.dumps(job, protocol=pickle.HIGHEST_PROTOCOL)
         started = time.monotonic()
-        worker = await self._acquire(timeout)
+        worker = await self._acquire(payload, timeout)
         remaining = max(timeout - (time.monotonic() - started), 0.0)
         self.busy += 1
         try:
             async with asyncio.timeout(remaining):
-                outcome = await worker.roundtrip(job)
+                outcome = await worker.receive()
         except TimeoutError:
             self._replace(worker, "deadline")
             raise DeadlineExceeded() from None

@@ -130,3 +130,19 @@ async def _start_heavy(h: Harness, body: bytes):  # type: ignore[no-untyped-def]
     import asyncio
 
     return asyncio.ensure_future(h.client.post("/v1/smooth", content=body, headers={"content-type": "application/json"}))
+
+
+def test_requests_queued_on_one_worker_each_get_their_own_answer() -> None:
+    # One worker and a waiting room of eight: each released worker is handed the next
+    # waiting job at once, so answers must still match their requests one for one.
+    h = Harness(workers=1, queue_size=8, deadline_seconds=30.0)
+    try:
+        sizes = [5 + i for i in range(8)]
+        bodies = [{"x": [float(j) for j in range(n)], "y": [float(j % 3) for j in range(n)], "bandwidth": 1.5} for n in sizes]
+        futures = [h.submit("POST", "/v1/smooth", json=b) for b in bodies]
+        answers = [f.result(60) for f in futures]
+        assert [a.status_code for a in answers] == [200] * len(sizes)
+        assert [a.json()["diagnostics"]["n"] for a in answers] == sizes
+        assert h.service.pool.waiting == 0 and h.service.pool.busy == 0
+    finally:
+        h.close()
