@@ -571,14 +571,32 @@ def gauss_translate(tiles, moments, target_tiles, translations, reach, local):  
 
 @njit(cache=True, nogil=True, error_model="numpy", fastmath=_FAST)
 def gauss_evaluate(local, which, w, fact, nderiv, out):  # pragma: no cover - compiled
-    """``out[i, c, k] = d^k/dw^k sum_n local[which[i], c, n] w^n`` at ``w = w[i]`` (Horner's rule)."""
+    """``out[i, c, k] = d^k/dw^k sum_n local[which[i], c, n] w^n`` at ``w = w[i]`` (Horner's rule).
+
+    Derivative ``k`` is ``sum_j local[n = j + k] (j + k)! / j! w^j``; its coefficients are
+    tabulated when the tile changes (``which`` is non-decreasing: points ascend), so every
+    (column, derivative) pair runs the same Horner chain and the chains are interleaved.
+    """
     ncol, nterms = local.shape[1], local.shape[2]
+    nk = nderiv + 1
+    chains = ncol * nk
+    coef = np.zeros((nterms, chains))
+    acc = np.empty(chains)
+    current = -1
     for i in range(w.size):
         row = which[i]
+        if row != current:
+            current = row
+            for c in range(ncol):
+                for k in range(nk):
+                    for j in range(nterms):
+                        coef[j, c * nk + k] = local[row, c, j + k] * (fact[j + k] / fact[j]) if j + k < nterms else 0.0
         wi = w[i]
+        for r in range(chains):
+            acc[r] = coef[nterms - 1, r]
+        for j in range(nterms - 2, -1, -1):
+            for r in range(chains):
+                acc[r] = acc[r] * wi + coef[j, r]
         for c in range(ncol):
-            for k in range(nderiv + 1):
-                acc = 0.0
-                for n in range(nterms - 1, k - 1, -1):
-                    acc = acc * wi + local[row, c, n] * (fact[n] / fact[n - k])
-                out[i, c, k] = acc
+            for k in range(nk):
+                out[i, c, k] = acc[c * nk + k]

@@ -243,6 +243,7 @@ class Smoother:
         self.engine = choose_engine(engine, kernel, sample, self.bandwidth, sample.n)
         self.selection = selection
         self._cautions: list[Caution] = []
+        self._plans: dict[str, MomentPlan] = {}
 
     # -- basic facts -------------------------------------------------------
     @property
@@ -310,13 +311,26 @@ class Smoother:
                 self.sample.distinct_prefix, _SINGULAR, beta, inv, deg, counts,
             )
             return LocalSolution(beta, inv, deg, counts)
-        plan = MomentPlan(xs, values, self.kernel_spec, self.bandwidth, 2 * p, engine=engine, column_orders=(2 * p, p))
+        plan = self._fit_plan(engine)
         for start in range(0, t.size, _BLOCK):
             sl = slice(start, min(start + _BLOCK, t.size))
             mom, lo, hi = plan(t[sl])
             counts[sl] = np.maximum(hi - lo, 0)
             _compiled.solve_local(mom, lo, hi, self.sample.distinct_prefix, p, _SINGULAR, beta[sl], inv[sl], deg[sl])
         return LocalSolution(beta, inv, deg, counts)
+
+    def _fit_plan(self, engine: str) -> MomentPlan:
+        """The source-side work for local fits with ``engine``, done once per smoother.
+
+        Curve points, prediction points and the data points then share it (and,
+        for the gaussian, its translated local expansions).
+        """
+        plan = self._plans.get(engine)
+        if plan is None:
+            p = self.degree
+            plan = MomentPlan(self.sample.xs, self.sample.values(), self.kernel_spec, self.bandwidth, 2 * p, engine=engine, column_orders=(2 * p, p))
+            self._plans[engine] = plan
+        return plan
 
     # -- public API --------------------------------------------------------
     def predict(self, points: Any) -> np.ndarray:

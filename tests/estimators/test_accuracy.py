@@ -156,3 +156,27 @@ def test_binned_engine_error_is_small(kernel: str) -> None:
     binned = fit(x, y, kernel=kernel, bandwidth=1.0, engine="binned").predict(t)
     bound = {"gaussian": 1e-6, "epanechnikov": 1e-4, "tricube": 1e-4}[kernel]
     assert np.max(np.abs(binned - exact)) <= bound * np.ptp(y)
+
+
+@pytest.mark.parametrize("cache_tiles", [16384, 8])
+def test_gaussian_queries_sharing_translated_tiles_match_dense_formula(cache_tiles: int, monkeypatch: pytest.MonkeyPatch) -> None:
+    # One smoother answers several sets of points; the fast Gauss transform keeps the
+    # local expansion of every tile it has translated and reuses it for later points.
+    # Each answer must equal the direct formula (Fan & Gijbels 1996, eq. 3.4) whether a
+    # tile was cached, new, outside the data, or the cache was full (cache_tiles=8).
+    from estimators import sums
+
+    monkeypatch.setattr(sums, "_LOCAL_CACHE_TILES", cache_tiles)
+    rng = np.random.default_rng(7)
+    x = rng.uniform(0, 10, N)
+    y = np.sin(x) + rng.normal(0, 0.2, N)
+    h = 0.4
+    s = fit(x, y, kernel="gaussian", bandwidth=h, engine="exact", degree=1)
+    w = np.ones(N)
+    y_range = float(np.ptp(y))
+    for points in (np.linspace(2.0, 6.0, 37), np.linspace(-1.5, 11.5, 53), np.sort(rng.uniform(0, 10, 40))):
+        ours = s.predict(points)
+        reference = dense_local_fit(x, y, w, points, KERNELS["gaussian"], h, 1)[0]
+        assert np.max(np.abs(ours - reference)) <= 1e-9 * y_range
+    fitted_reference = dense_local_fit(x, y, w, x, KERNELS["gaussian"], h, 1)[0]
+    assert np.max(np.abs(s.fitted() - fitted_reference)) <= 1e-9 * y_range
