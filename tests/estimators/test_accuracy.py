@@ -180,3 +180,36 @@ def test_gaussian_queries_sharing_translated_tiles_match_dense_formula(cache_til
         assert np.max(np.abs(ours - reference)) <= 1e-9 * y_range
     fitted_reference = dense_local_fit(x, y, w, x, KERNELS["gaussian"], h, 1)[0]
     assert np.max(np.abs(s.fitted() - fitted_reference)) <= 1e-9 * y_range
+
+
+def _dense_smoother_matrix(x: np.ndarray, w: np.ndarray, kernel: str, h: float, degree: int) -> np.ndarray:
+    """Row k maps y to the local polynomial estimate at x_k: e1' (X'KX)^-1 X'K (Fan & Gijbels 1996, eq. 3.4)."""
+    k = KERNELS[kernel]
+    rows = np.empty((x.size, x.size))
+    for i, t in enumerate(x):
+        u = (x - t) / h
+        kw = k(u) * w
+        design = np.vander(u, degree + 1, increasing=True)
+        rows[i] = np.linalg.solve(design.T @ (kw[:, None] * design), design.T * kw)[0]
+    return rows
+
+
+@pytest.mark.parametrize("kernel", ["epanechnikov", "gaussian"])
+@pytest.mark.parametrize("degree", [1, 2])
+def test_degrees_of_freedom_and_residual_scale_match_the_dense_smoother_matrix(kernel: str, degree: int) -> None:
+    # sigma^2 = sum w r^2 / (n - 2 tr L + tr(L' W L W^-1)) (Hastie & Tibshirani 1990, Section 3.4),
+    # every trace taken from the explicit n-by-n smoother matrix.
+    rng = np.random.default_rng(11)
+    x = rng.uniform(0, 10, 200)
+    y = np.sin(x) + rng.normal(0, 0.3, x.size)
+    w = rng.uniform(0.5, 2.0, x.size)
+    h = 1.2
+    s = fit(x, y, kernel=kernel, bandwidth=h, degree=degree, weights=w, engine="exact")
+    big_l = _dense_smoother_matrix(x, w, kernel, h, degree)
+    tr_l = np.trace(big_l)
+    tr_var = float(np.sum(w[:, None] * big_l**2 / w[None, :]))
+    resid = y - big_l @ y
+    sigma = np.sqrt(np.sum(w * resid**2) / (x.size - 2 * tr_l + tr_var))
+    assert s.effective_df == pytest.approx(tr_l, rel=1e-9)
+    assert s.variance_df == pytest.approx(tr_var, rel=1e-9)
+    assert s.residual_scale == pytest.approx(sigma, rel=1e-9)
