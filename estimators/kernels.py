@@ -19,7 +19,7 @@ References
 from __future__ import annotations
 
 import math
-from functools import cached_property
+from functools import cached_property, lru_cache
 from dataclasses import dataclass, field
 from typing import Callable
 
@@ -42,15 +42,20 @@ class Shape:
     cosines: tuple[tuple[float, float], ...] = ()  # (amplitude, angular frequency)
 
     def squared(self) -> "Shape":
-        """The shape of ``K(u)**2`` (used for variances)."""
-        if self.cosines and self.poly:
-            raise NotImplementedError("mixed polynomial and cosine shapes are not squared")
-        if self.cosines:
-            # (a cos(w u))^2 = a^2/2 + a^2/2 cos(2 w u)
-            ((amp, omega),) = self.cosines
-            return Shape(poly=(amp * amp / 2.0,), cosines=((amp * amp / 2.0, 2.0 * omega),))
-        sq = npoly.polymul(np.array(self.poly), np.array(self.poly))
-        return Shape(poly=tuple(float(c) for c in sq), in_abs=self.in_abs)
+        """The shape of ``K(u)**2`` (used for variances; computed once per shape)."""
+        return _squared(self)
+
+
+@lru_cache(maxsize=64)
+def _squared(shape: Shape) -> Shape:
+    if shape.cosines and shape.poly:
+        raise NotImplementedError("mixed polynomial and cosine shapes are not squared")
+    if shape.cosines:
+        # (a cos(w u))^2 = a^2/2 + a^2/2 cos(2 w u)
+        ((amp, omega),) = shape.cosines
+        return Shape(poly=(amp * amp / 2.0,), cosines=((amp * amp / 2.0, 2.0 * omega),))
+    sq = npoly.polymul(np.array(shape.poly), np.array(shape.poly))
+    return Shape(poly=tuple(float(c) for c in sq), in_abs=shape.in_abs)
 
 
 @dataclass(frozen=True)

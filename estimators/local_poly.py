@@ -410,11 +410,14 @@ class Smoother:
             engine=self._engine_for(points.size),
         )
         q2 = plan(points)[0][:, 0, :]
-        idx = np.arange(p + 1)
-        qmat = q2[:, idx[:, None] + idx[None, :]]
         a = sol.inv[:, 0, :]
-        w_sorted = self.sample.w[self.sample.order]
-        return float(np.nansum(w_sorted * np.einsum("mi,mij,mj->m", a, qmat, a)))
+        # a^T Q a with Q_ij = q2[i + j], term by term (a few vector operations, no einsum)
+        quad = np.zeros(points.size)
+        for i in range(p + 1):
+            for j in range(p + 1):
+                quad += a[:, i] * a[:, j] * q2[:, i + j]
+        quad *= self.sample.w[self.sample.order]
+        return float(np.sum(quad, where=~np.isnan(quad)))
 
     @cached_property
     def residual_scale(self) -> float:
