@@ -88,8 +88,9 @@ class _Worker:
     def pid(self) -> int | None:
         return self.process.pid
 
-    def send(self, payload: bytes) -> None:
+    def send(self, job: Job) -> None:
         """Queue one framed job on the socket (non-blocking; the transport sends what it can now)."""
+        payload = pickle.dumps(job, protocol=pickle.HIGHEST_PROTOCOL)
         self.writer.write(_frame(payload))
         self.writer.write(payload)
 
@@ -146,7 +147,7 @@ class WorkerPool:
         self._threads = ThreadPoolExecutor(max_workers=size + 2, thread_name_prefix="bandwise-pool")
         self._idle: list[_Worker] = []
         self._all: set[_Worker] = set()
-        self._waiters: collections.deque[tuple[asyncio.Future[_Worker], bytes]] = collections.deque()
+        self._waiters: collections.deque[tuple[asyncio.Future[_Worker], Job]] = collections.deque()
         self._loop: asyncio.AbstractEventLoop | None = None
         self._closed = False
         self._starting = 0
@@ -285,9 +286,9 @@ class WorkerPool:
             worker.kill("shutdown")
             return
         while self._waiters:
-            fut, payload = self._waiters.popleft()
+            fut, job = self._waiters.popleft()
             if not fut.done():
-                worker.send(payload)
+                worker.send(job)
                 fut.set_result(worker)
                 return
         self._idle.append(worker)
@@ -301,15 +302,15 @@ class WorkerPool:
             self._replace(worker, "died")
         return None
 
-    async def _acquire(self, payload: bytes, timeout: float) -> _Worker:
-        """A worker that has been sent ``payload``: an idle one at once, else the next one released."""
+    async def _acquire(self, job: Job, timeout: float) -> _Worker:
+        """A worker that has been sent ``job``: an idle one at once, else the next one released."""
         worker = self._pop_idle()
         if worker is not None:
-            worker.send(payload)
+            worker.send(job)
             return worker
         assert self._loop is not None
         fut: asyncio.Future[_Worker] = self._loop.create_future()
-        self._waiters.append((fut, payload))
+        self._waiters.append((fut, job))
         self.waiting += 1
         try:
             async with asyncio.timeout(timeout):
@@ -350,9 +351,8 @@ class WorkerPool:
             raise PoolClosed()
         if not self._idle and self.waiting >= self.queue_size:
             raise Overloaded()
-        payload = pickle.dumps(job, protocol=pickle.HIGHEST_PROTOCOL)
         started = time.monotonic()
-        worker = await self._acquire(payload, timeout)
+        worker = await self._acquire(job, timeout)
         remaining = max(timeout - (time.monotonic() - started), 0.0)
         self.busy += 1
         try:
