@@ -10,7 +10,9 @@ the process is killed and replaced.
 The pool has ``size`` workers and a waiting room of ``queue_size`` requests.
 A request that finds both full is refused at once (503 with Retry-After)
 rather than queued without limit.  Each request has a deadline covering its
-wait and its work.
+wait and its work.  A worker that finishes is handed the longest-waiting job
+at once, written to its socket before the event loop goes on to answer the
+request just finished, so workers do not sit idle while the loop is busy.
 
 The HTTP process talks to each worker over a Unix socket pair with the
 event loop's own non-blocking I/O (no thread hop per request, so no wait for
