@@ -417,7 +417,7 @@ class Smoother:
             for j in range(p + 1):
                 quad += a[:, i] * a[:, j] * q2[:, i + j]
         quad *= self.sample.w[self.sample.order]
-        return float(np.sum(quad, where=~np.isnan(quad)))
+        return float(np.nansum(quad))
 
     @cached_property
     def residual_scale(self) -> float:

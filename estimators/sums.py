@@ -392,12 +392,11 @@ def _translation_matrices() -> np.ndarray:
     n = N_TERMS
     reach = int(math.ceil(GAUSSIAN_CUTOFF)) + 1
     jk = np.add.outer(np.arange(n), np.arange(n))
-    fact = np.array([math.factorial(j) for j in range(n)], dtype=float)
     sign_k = (-1.0) ** np.arange(n)
     out = np.empty((2 * reach + 1, n, n))
     for i, off in enumerate(range(-reach, reach + 1)):
         hf = _hermite_functions(np.array(float(off)), 2 * n)
-        out[i] = np.where(jk < n, hf[jk] * (sign_k / fact)[:, None], 0.0)
+        out[i] = np.where(jk < n, hf[jk] * (sign_k / _FACTORIALS[:n])[:, None], 0.0)
     out.setflags(write=False)
     return out
 

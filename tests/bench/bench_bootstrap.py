@@ -36,7 +36,6 @@ from .timing import best_of
 POINTS = 200
 
 
-
 def _peak(fn: Callable[[], object]) -> int:
     tracemalloc.start()
     fn()

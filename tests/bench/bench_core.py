@@ -24,7 +24,6 @@ from .timing import best_of
 DENSE_BUDGET_S = 30.0
 
 
-
 def dense_fit(x: np.ndarray, y: np.ndarray, kernel: str, h: float, degree: int = 1, chunk: int = 512) -> np.ndarray:
     """The vectorised dense formula: kernel weight matrix block by block, then the local normal equations."""
     k = KERNELS[kernel]
