@@ -12,6 +12,7 @@ import orjson
 from fastapi import FastAPI, Request
 from fastapi.exceptions import RequestValidationError
 from fastapi.responses import Response
+from fastapi.routing import APIRoute
 from starlette.exceptions import HTTPException as StarletteHTTPException
 from starlette.middleware.cors import CORSMiddleware
 from starlette.staticfiles import StaticFiles
@@ -20,6 +21,8 @@ from . import __version__
 from .core import Service
 from .docs_text import API_DESCRIPTION
 from .errors import PROBLEM_MEDIA_TYPE, ProblemError, field_errors, problem_document
+from .logs import flush_access_log
+from .hot_routes import HOT_KINDS, HotRoutesMiddleware
 from .observability import ObservabilityMiddleware, request_id_of
 from .openapi import build_openapi
 from .routes import install_routes
@@ -102,6 +105,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
             yield
         finally:
             await service.stop()
+            flush_access_log()
 
     app = FastAPI(
         title="Bandwise",
@@ -129,6 +133,8 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     if assets is not None:
         app.mount("/docs/assets", StaticFiles(directory=assets), name="docs-assets")
     app.openapi = lambda: build_openapi(app)  # type: ignore[method-assign]
+    hot = {r.path: r for r in app.routes if isinstance(r, APIRoute) and r.path in HOT_KINDS and "POST" in r.methods}
+    app.add_middleware(HotRoutesMiddleware, service=service, routes=hot, on_problem=_on_problem)  # innermost: inside CORS and logging
     if settings.cors_origins:
         app.add_middleware(
             ProblemCORSMiddleware,

@@ -85,6 +85,11 @@ class Service:
 
     # -------------------------------------------------------------- work
 
+    async def handle(self, request: Request, kind: str) -> Response:
+        """What every numerical POST route does: guard, then hand the body to a worker."""
+        await self.guard(request)
+        return await self.submit(request, kind)
+
     async def submit(self, request: Request, kind: str, *, params: dict[str, str] | None = None, with_body: bool = True) -> Response:
         """Hand one request to a worker and turn its outcome into a response."""
         if self.draining:

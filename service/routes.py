@@ -55,18 +55,15 @@ def api_router(service: Service) -> APIRouter:
 
     @router.post("/smooth", summary="Smooth one series", description=SMOOTH_DESCRIPTION, response_model=None, responses={200: {"model": SmoothResponse, "description": "The fit."}, **POST_PROBLEMS}, tags=["smoothing"])
     async def smooth(request: Request) -> Response:
-        await service.guard(request)
-        return await service.submit(request, "smooth")
+        return await service.handle(request, "smooth")
 
     @router.post("/smooth/batch", summary="Smooth many series", description=BATCH_DESCRIPTION, response_model=None, responses={200: {"model": BatchResponse, "description": "One slot per series."}, **POST_PROBLEMS}, tags=["smoothing"])
     async def smooth_batch(request: Request) -> Response:
-        await service.guard(request)
-        return await service.submit(request, "batch")
+        return await service.handle(request, "batch")
 
     @router.post("/bandwidth", summary="Select a bandwidth", description=BANDWIDTH_DESCRIPTION, response_model=None, responses={200: {"model": BandwidthResponse, "description": "The chosen bandwidth with every candidate's score."}, **POST_PROBLEMS}, tags=["smoothing"])
     async def bandwidth(request: Request) -> Response:
-        await service.guard(request)
-        return await service.submit(request, "bandwidth")
+        return await service.handle(request, "bandwidth")
 
     @router.get("/kernels", summary="Kernels and their constants", response_model=None, responses={200: {"model": KernelsResponse, "description": "All kernels."}, **GET_PROBLEMS}, tags=["reference"])
     async def kernels(request: Request) -> Response:

@@ -2,14 +2,17 @@
 
 from __future__ import annotations
 
+import asyncio
 import json
 import logging
+import os
 
+import httpx
 import pytest
 from fastapi import Request
 
 from service.jobs import Job
-from service.logs import JsonFormatter
+from service.logs import AccessLogWriter, JsonFormatter
 
 from .conftest import Harness, problem_ok
 
@@ -140,3 +143,81 @@ def test_problem_type_uris_resolve(api: Harness) -> None:
     page = api.get(doc["type"])
     assert page.status_code == 200 and "Invalid request" in page.text
     problem_ok(api.get("/problems/no-such-problem"), 404)
+
+
+def test_direct_and_routed_numerical_posts_answer_alike(api: Harness) -> None:
+    """The direct path for POST /v1/* and FastAPI's router (taken under a root path) give the same answer and route label."""
+    root = httpx.AsyncClient(transport=httpx.ASGITransport(app=api.app, root_path="/gateway"), base_url="http://bandwise.test", timeout=60.0)
+    try:
+        before = _count(api, "/v1/smooth", "200")
+        direct = api.post("/v1/smooth", json=BODY)
+        routed = api.run(root.post("/gateway/v1/smooth", json=BODY))
+        assert direct.status_code == routed.status_code == 200
+        assert direct.json() == routed.json()
+        assert _count(api, "/v1/smooth", "200") == before + 2
+        bad_direct = api.post("/v1/bandwidth", json={"x": [1, 2], "y": [1]})
+        bad_routed = api.run(root.post("/gateway/v1/bandwidth", json={"x": [1, 2], "y": [1]}))
+        a, b = problem_ok(bad_direct, 422), problem_ok(bad_routed, 422)
+        assert a["errors"] == b["errors"] and a["type"] == b["type"]
+    finally:
+        api.run(root.aclose())
+
+
+def _count(api: Harness, route: str, status: str) -> float:
+    value = api.service.metrics.registry.get_sample_value("bandwise_requests_total", {"route": route, "method": "POST", "status": status})
+    return value or 0.0
+
+
+def _pipe_text(fd: int) -> str:
+    os.set_blocking(fd, False)
+    try:
+        return os.read(fd, 1 << 20).decode()
+    except BlockingIOError:
+        return ""
+
+
+def test_access_log_writer_gathers_lines_and_writes_them_all() -> None:
+    read_fd, write_fd = os.pipe()
+    try:
+        writer = AccessLogWriter(write_fd, max_bytes=1 << 20, max_delay=60.0)
+
+        async def three_requests() -> str:
+            for i in range(3):
+                writer({"request_id": f"r{i}", "status": 200})
+            return _pipe_text(read_fd)  # inside a loop, nothing is written yet
+
+        assert asyncio.run(three_requests()) == ""
+        writer.flush()
+        lines = _pipe_text(read_fd).splitlines()
+        assert [json.loads(line)["request_id"] for line in lines] == ["r0", "r1", "r2"]
+        assert all(json.loads(line)["logger"] == "bandwise.access" for line in lines)
+        writer({"request_id": "outside-a-loop"})  # no running loop: written at once
+        assert json.loads(_pipe_text(read_fd))["request_id"] == "outside-a-loop"
+    finally:
+        os.close(read_fd)
+        os.close(write_fd)
+
+
+def test_access_log_writer_writes_on_size_and_on_its_timer() -> None:
+    read_fd, write_fd = os.pipe()
+    try:
+        writer = AccessLogWriter(write_fd, max_bytes=300, max_delay=0.05)
+
+        async def run() -> tuple[list[str], str]:
+            for i in range(5):  # each line is ~100 bytes: the third one passes 300
+                writer({"request_id": f"s{i}"})
+            by_size = _pipe_text(read_fd).splitlines()
+            text = ""
+            for _ in range(200):  # the rest arrives by the timer; bounded wait
+                await asyncio.sleep(0.01)
+                text += _pipe_text(read_fd)
+                if text.count("\n") == 2:
+                    break
+            return by_size, text
+
+        by_size, later = asyncio.run(run())
+        assert [json.loads(line)["request_id"] for line in by_size] == ["s0", "s1", "s2"]
+        assert [json.loads(line)["request_id"] for line in later.splitlines()] == ["s3", "s4"]
+    finally:
+        os.close(read_fd)
+        os.close(write_fd)
