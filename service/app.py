@@ -127,13 +127,15 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     app.add_exception_handler(ProblemError, _on_problem)
     app.add_exception_handler(StarletteHTTPException, _on_http_error)
     app.add_exception_handler(RequestValidationError, _on_request_validation)
-    install_routes(app, service)
+    routers = install_routes(app, service)
     app.mount("/static", StaticFiles(directory=STATIC_DIR, check_dir=False), name="static")
     assets = swagger_ui_dir()
     if assets is not None:
         app.mount("/docs/assets", StaticFiles(directory=assets), name="docs-assets")
     app.openapi = lambda: build_openapi(app)  # type: ignore[method-assign]
-    hot = {r.path: r for r in app.routes if isinstance(r, APIRoute) and r.path in HOT_KINDS and "POST" in r.methods}
+    hot = {r.path: r for router in routers for r in router.routes if isinstance(r, APIRoute) and r.path in HOT_KINDS and "POST" in r.methods}
+    if set(hot) != set(HOT_KINDS):
+        raise RuntimeError(f"numerical POST routes not registered: {sorted(set(HOT_KINDS) - set(hot))}")
     app.add_middleware(HotRoutesMiddleware, service=service, routes=hot, on_problem=_on_problem)  # innermost: inside CORS and logging
     if settings.cors_origins:
         app.add_middleware(

@@ -112,7 +112,7 @@ class Service:
             except TimeoutError:
                 raise ProblemError("request-timeout", f"The body did not arrive within {self.settings.deadline_seconds:g} s.", headers={"Connection": "close"}) from None
         accept_gzip = cache_key is None and "gzip" in request.headers.get("accept-encoding", "").lower()
-        job = Job(kind, body, request_id_of(request.scope), request.url.path, dict(params or {}), accept_gzip)
+        job = Job(kind, body, request_id_of(request.scope), request.scope["path"], dict(params or {}), accept_gzip)
         try:
             outcome = await self.pool.run(job, self.settings.deadline_seconds)
         except Overloaded:

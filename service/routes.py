@@ -124,6 +124,9 @@ def ops_router(service: Service) -> APIRouter:
     return router
 
 
-def install_routes(app: FastAPI, service: Service) -> None:
-    app.include_router(api_router(service))
-    app.include_router(ops_router(service))
+def install_routes(app: FastAPI, service: Service) -> list[APIRouter]:
+    """Include the routers in ``app``; returns them (their routes carry full paths)."""
+    routers = [api_router(service), ops_router(service)]
+    for router in routers:
+        app.include_router(router)
+    return routers

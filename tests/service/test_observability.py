@@ -221,3 +221,8 @@ def test_access_log_writer_writes_on_size_and_on_its_timer() -> None:
     finally:
         os.close(read_fd)
         os.close(write_fd)
+
+
+def test_generated_request_ids_are_distinct_across_many_requests(api: Harness) -> None:
+    ids = {api.get("/healthz").headers["x-request-id"] for _ in range(200)}
+    assert len(ids) == 200 and all(len(i) == 32 and int(i, 16) >= 0 for i in ids)
