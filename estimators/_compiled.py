@@ -36,7 +36,7 @@ import numpy as np
 from numba import njit
 
 __all__ = ["window_moments", "window_fit", "solve_local", "linear_bin", "keys_interpolate", "gather_sorted",
-           "gauss_tile_moments", "gauss_translate", "gauss_evaluate"]
+           "gauss_tile_moments", "gauss_translate", "gauss_evaluate", "gauss_transform"]
 
 # reassociation and fused multiply-add only: no assumptions about NaN or infinity
 _FAST = {"reassoc", "contract"}
@@ -540,6 +540,33 @@ def gauss_tile_moments(v, starts, q, fact, moments):  # pragma: no cover - compi
                 moments[s, c, j] /= fact[j]
 
 
+@njit(cache=True, nogil=True, inline="always", fastmath=_FAST)
+def _translate_tile(tt, tiles, moments, translations, reach, first, row):  # pragma: no cover - compiled
+    """``row[c, k] = sum_D sum_j A_D[k, j] moments[S, c, j]`` over source tiles within ``reach`` of ``tt``.
+
+    ``first`` is where the search for the first source tile in reach starts
+    (target tiles visited in ascending order only move it forward); returns its new value.
+    """
+    ns = tiles.size
+    ncol, nterms = moments.shape[1], moments.shape[2]
+    for c in range(ncol):
+        for k in range(nterms):
+            row[c, k] = 0.0
+    while first < ns and tiles[first] < tt - reach:
+        first += 1
+    s = first
+    while s < ns and tiles[s] <= tt + reach:
+        amat = translations[int(tiles[s] - tt) + reach]
+        for c in range(ncol):
+            for k in range(nterms):
+                acc = 0.0
+                for j in range(nterms - k):
+                    acc += amat[k, j] * moments[s, c, j]
+                row[c, k] += acc
+        s += 1
+    return first
+
+
 @njit(cache=True, nogil=True, error_model="numpy", fastmath=_FAST)
 def gauss_translate(tiles, moments, target_tiles, translations, reach, local):  # pragma: no cover - compiled
     """Fast Gauss transform: local expansions ``local[t, c, k] = sum_D sum_j A_D[k, j] moments[S, c, j]``.
@@ -547,56 +574,134 @@ def gauss_translate(tiles, moments, target_tiles, translations, reach, local):  
     Sums over the source tiles ``S`` within ``reach`` tiles of each target tile
     (both sorted); ``translations[D + reach]`` is ``A_D`` (zero where ``j + k >= N``).
     """
-    ns = tiles.size
-    ncol, nterms = moments.shape[1], moments.shape[2]
     first = 0
     for ti in range(target_tiles.size):
-        for c in range(ncol):
-            for k in range(nterms):
-                local[ti, c, k] = 0.0
-        tt = target_tiles[ti]
-        while first < ns and tiles[first] < tt - reach:
-            first += 1
-        s = first
-        while s < ns and tiles[s] <= tt + reach:
-            amat = translations[int(tiles[s] - tt) + reach]
-            for c in range(ncol):
-                for k in range(nterms):
-                    acc = 0.0
-                    for j in range(nterms - k):
-                        acc += amat[k, j] * moments[s, c, j]
-                    local[ti, c, k] += acc
-            s += 1
+        first = _translate_tile(target_tiles[ti], tiles, moments, translations, reach, first, local[ti])
+
+
+_LANES = 8  # points evaluated together, one vector lane each
+
+
+@njit(cache=True, nogil=True, inline="always")
+def _derivative_factors(fact, nk, nterms):  # pragma: no cover - compiled
+    """``ratio[k, j] = (j + k)! / j!``: derivative ``k`` of ``sum_n L_n w^n`` is ``sum_j L_{j+k} ratio[k, j] w^j``."""
+    ratio = np.zeros((nk, nterms))
+    for k in range(nk):
+        for j in range(nterms - k):
+            ratio[k, j] = fact[j + k] / fact[j]
+    return ratio
+
+
+@njit(cache=True, nogil=True, inline="always", fastmath=_FAST)
+def _evaluate_run(row, ratio, conv, w, i0, i1, coef, pw, acc, out):  # pragma: no cover - compiled
+    """``out[i, c, k] = sum_j conv[j, k] D_j(w_i)`` for the points ``i0 <= i < i1`` of one target tile.
+
+    ``D_j`` is derivative ``j`` of the tile's local expansion ``row[c]``; the
+    combination ``conv`` is folded into the polynomial coefficients once per
+    tile.  Powers of ``w`` are formed for ``_LANES`` points at once and every
+    output is a dot product with them, vectorised across the points (no
+    serial Horner chain).
+    """
+    ncol, nterms = row.shape
+    nk = ratio.shape[0]
+    for c in range(ncol):
+        for k in range(nk):
+            r = c * nk + k
+            for n in range(nterms):
+                coef[r, n] = 0.0
+            for j in range(nk):
+                f = conv[j, k]
+                if f != 0.0:
+                    for n in range(nterms - j):
+                        coef[r, n] += f * row[c, n + j] * ratio[j, n]
+    for b0 in range(i0, i1, _LANES):
+        nb = min(_LANES, i1 - b0)
+        for b in range(_LANES):
+            pw[0, b] = 1.0
+            pw[1, b] = w[b0 + b] if b < nb else 0.0
+        for j in range(2, nterms):
+            for b in range(_LANES):
+                pw[j, b] = pw[j - 1, b] * pw[1, b]
+        for r in range(ncol * nk):
+            for b in range(_LANES):
+                acc[b] = 0.0
+            for j in range(nterms):
+                cj = coef[r, j]
+                for b in range(_LANES):
+                    acc[b] += cj * pw[j, b]
+            c = r // nk
+            for b in range(nb):
+                out[b0 + b, c, r - c * nk] = acc[b]
 
 
 @njit(cache=True, nogil=True, error_model="numpy", fastmath=_FAST)
-def gauss_evaluate(local, which, w, fact, nderiv, out):  # pragma: no cover - compiled
-    """``out[i, c, k] = d^k/dw^k sum_n local[which[i], c, n] w^n`` at ``w = w[i]`` (Horner's rule).
+def gauss_evaluate(local, which, w, fact, conv, out):  # pragma: no cover - compiled
+    """``out[i, c, k] = sum_j conv[j, k] d^j/dw^j sum_n local[which[i], c, n] w^n`` at ``w = w[i]``.
 
-    Derivative ``k`` is ``sum_j local[n = j + k] (j + k)! / j! w^j``; its coefficients are
-    tabulated when the tile changes (``which`` is non-decreasing: points ascend), so every
-    (column, derivative) pair runs the same Horner chain and the chains are interleaved.
+    ``which`` is non-decreasing (points ascend), so the points of one tile form a run.
     """
     ncol, nterms = local.shape[1], local.shape[2]
-    nk = nderiv + 1
-    chains = ncol * nk
-    coef = np.zeros((nterms, chains))
-    acc = np.empty(chains)
-    current = -1
-    for i in range(w.size):
-        row = which[i]
-        if row != current:
-            current = row
-            for c in range(ncol):
-                for k in range(nk):
-                    for j in range(nterms):
-                        coef[j, c * nk + k] = local[row, c, j + k] * (fact[j + k] / fact[j]) if j + k < nterms else 0.0
-        wi = w[i]
-        for r in range(chains):
-            acc[r] = coef[nterms - 1, r]
-        for j in range(nterms - 2, -1, -1):
-            for r in range(chains):
-                acc[r] = acc[r] * wi + coef[j, r]
-        for c in range(ncol):
-            for k in range(nk):
-                out[i, c, k] = acc[c * nk + k]
+    nk = conv.shape[0]
+    ratio = _derivative_factors(fact, nk, nterms)
+    coef = np.zeros((ncol * nk, nterms))
+    pw = np.empty((nterms, _LANES))
+    acc = np.empty(_LANES)
+    m = w.size
+    i0 = 0
+    while i0 < m:
+        i1 = i0 + 1
+        while i1 < m and which[i1] == which[i0]:
+            i1 += 1
+        _evaluate_run(local[which[i0]], ratio, conv, w, i0, i1, coef, pw, acc, out)
+        i0 = i1
+
+
+@njit(cache=True, nogil=True, error_model="numpy", fastmath=_FAST)
+def gauss_transform(points, origin, h, tile_lo, tiles, moments, translations, reach, fact, conv, local, filled, out):  # pragma: no cover - compiled
+    """The whole target side of the fast Gauss transform in one pass over ascending ``points``.
+
+    ``local[t]`` caches the local expansion of target tile ``tile_lo + t``
+    (``filled[t]`` once translated), for every tile that has a source within
+    ``reach``; points in tiles outside that span get zero sums.  Each point's
+    tile is ``floor((p - origin) / h)`` and its offset from the tile centre
+    ``w = (p - origin) / h - (tile + 0.5)``, as on the source side.  Output as
+    for :func:`gauss_evaluate` (derivatives combined by ``conv``).
+    """
+    ncol, nterms = moments.shape[1], moments.shape[2]
+    nk = conv.shape[0]
+    span = filled.size
+    ratio = _derivative_factors(fact, nk, nterms)
+    coef = np.zeros((ncol * nk, nterms))
+    pw = np.empty((nterms, _LANES))
+    acc = np.empty(_LANES)
+    m = points.size
+    w = np.empty(m + _LANES)
+    first = 0
+    previous = -math.inf
+    i0 = 0
+    while i0 < m:
+        tile = np.floor((points[i0] - origin) / h)
+        w[i0] = (points[i0] - origin) / h - (tile + 0.5)
+        i1 = i0 + 1
+        while i1 < m:
+            scaled = (points[i1] - origin) / h
+            if np.floor(scaled) != tile:
+                break
+            w[i1] = scaled - (tile + 0.5)
+            i1 += 1
+        rel = tile - tile_lo
+        if rel >= 0.0 and rel < span:
+            t = int(rel)
+            if not filled[t]:
+                if tile < previous:
+                    first = 0  # points out of order: search the sources from the start
+                first = _translate_tile(tile, tiles, moments, translations, reach, first, local[t])
+                filled[t] = True
+                previous = tile
+            _evaluate_run(local[t], ratio, conv, w, i0, i1, coef, pw, acc, out)
+        else:
+            for i in range(i0, i1):
+                for c in range(ncol):
+                    for k in range(nk):
+                        out[i, c, k] = 0.0
+        i0 = i1

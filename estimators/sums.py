@@ -73,6 +73,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from functools import lru_cache
 from typing import Sequence
 import numpy as np
 from scipy import fft as sp_fft
@@ -317,6 +318,8 @@ _FACTORIALS.setflags(write=False)
 
 #: local expansions kept per source set, in tiles; beyond it each call translates afresh
 _LOCAL_CACHE_TILES = 16384
+#: source tiles farther than this from a target tile are skipped (GAUSSIAN_CUTOFF bandwidths, plus one tile)
+_REACH = int(math.ceil(GAUSSIAN_CUTOFF)) + 1
 
 
 class _GaussSources:
@@ -324,7 +327,11 @@ class _GaussSources:
 
     Local expansions, once translated for a target tile, are kept (up to
     :data:`_LOCAL_CACHE_TILES` tiles), so evaluating the same sources at the
-    curve points and then at the data points translates each tile once.
+    curve points and then at the data points translates each tile once.  When
+    every tile with a source in reach fits, the kept expansions are one dense
+    array indexed by tile and a single compiled pass does the lookup,
+    translation and evaluation (:func:`_compiled.gauss_transform`); otherwise
+    a sorted cache of tiles is merged in Python.
     """
 
     def __init__(self, x: np.ndarray, q: np.ndarray, bandwidth: float) -> None:
@@ -339,6 +346,13 @@ class _GaussSources:
         _compiled.gauss_tile_moments(np.ascontiguousarray(v), starts, np.ascontiguousarray(q, dtype=float), _FACTORIALS, self.moments)
         self._cached_tiles = np.empty(0)
         self._cached_local = np.empty((0, ncol, N_TERMS))
+        # Every tile with a source in reach fits the cache: keep it as one dense array indexed by tile.
+        span = int(self.tiles[-1] - self.tiles[0]) + 1 + 2 * _REACH if self.tiles.size else 0
+        self._dense = 0 < span <= _LOCAL_CACHE_TILES
+        if self._dense:
+            self._tile_lo = float(self.tiles[0] - _REACH)
+            self._dense_local = np.empty((span, ncol, N_TERMS))
+            self._filled = np.zeros(span, dtype=np.bool_)
 
     def _local(self, ttiles: np.ndarray) -> np.ndarray:
         """Local expansions at the ascending distinct target tiles ``ttiles``."""
@@ -349,8 +363,7 @@ class _GaussSources:
             return self._cached_local[pos]
         missing = ttiles[~hit]
         fresh = np.empty((missing.size, self.ncol, N_TERMS))
-        reach = int(math.ceil(GAUSSIAN_CUTOFF)) + 1
-        _compiled.gauss_translate(self.tiles, self.moments, missing, _TRANSLATIONS, reach, fresh)
+        _compiled.gauss_translate(self.tiles, self.moments, missing, _TRANSLATIONS, _REACH, fresh)
         if known.size + missing.size <= _LOCAL_CACHE_TILES:
             merged = np.concatenate([known, missing])
             order = np.argsort(merged, kind="stable")
@@ -362,23 +375,30 @@ class _GaussSources:
         out[hit] = self._cached_local[pos[hit]]
         return out
 
-    def transform(self, points: np.ndarray, nderiv: int) -> np.ndarray:
-        """``d^k/dw^k sum_i q_i exp(-(x_i - t)^2 / 2h^2)`` in units of ``h``, ``k <= nderiv``.
+    def transform(self, points: np.ndarray, conv: np.ndarray) -> np.ndarray:
+        """``sum_j conv[j, k] D_j(t)`` with ``D_j = d^j/dw^j sum_i q_i exp(-(x_i - t)^2 / 2h^2)`` in units of ``h``.
 
-        Equals ``sum_i q_i He_k(u_i) exp(-u_i^2/2)`` with ``u_i = (x_i - t)/h``.
-        ``points`` ascending. Returns shape ``(m, ncol, nderiv + 1)``.
+        ``D_j = sum_i q_i He_j(u_i) exp(-u_i^2/2)`` with ``u_i = (x_i - t)/h``
+        (the identity for ``conv`` gives the derivatives themselves).
+        ``points`` ascending. Returns shape ``(m, ncol, conv.shape[1])``.
         """
         m = points.size
-        out = np.zeros((m, self.ncol, nderiv + 1))
+        nk = conv.shape[1]
         if m == 0:
+            return np.zeros((0, self.ncol, nk))
+        out = np.empty((m, self.ncol, nk))
+        if self._dense:
+            _compiled.gauss_transform(
+                np.ascontiguousarray(points, dtype=float), self.origin, self.h, self._tile_lo, self.tiles, self.moments, _TRANSLATIONS, _REACH,
+                _FACTORIALS, conv, self._dense_local, self._filled, out,
+            )
             return out
         tgt_tile_all = np.floor((points - self.origin) / self.h)
         w_all = (points - self.origin) / self.h - (tgt_tile_all + 0.5)
         ttiles, starts = _sorted_groups(tgt_tile_all)
         which = np.repeat(np.arange(ttiles.size, dtype=np.int64), np.diff(np.append(starts, m)))
         local = self._local(ttiles)
-        # derivative k of sum_n L_n w^n is sum_n L_n n!/(n-k)! w^(n-k)
-        _compiled.gauss_evaluate(local, which, np.ascontiguousarray(w_all), _FACTORIALS, nderiv, out)
+        _compiled.gauss_evaluate(local, which, np.ascontiguousarray(w_all), _FACTORIALS, conv, out)
         return out
 
 
@@ -390,7 +410,7 @@ def _translation_matrices() -> np.ndarray:
     A constant table, built once at import.
     """
     n = N_TERMS
-    reach = int(math.ceil(GAUSSIAN_CUTOFF)) + 1
+    reach = _REACH
     jk = np.add.outer(np.arange(n), np.arange(n))
     sign_k = (-1.0) ** np.arange(n)
     out = np.empty((2 * reach + 1, n, n))
@@ -404,13 +424,15 @@ def _translation_matrices() -> np.ndarray:
 _TRANSLATIONS = _translation_matrices()
 
 
+@lru_cache(maxsize=None)
 def _hermite_to_power(order: int) -> np.ndarray:
-    """Matrix ``P`` with ``u^k = sum_j P[k, j] He_j(u)`` for ``k <= order``."""
+    """Matrix ``P`` with ``u^k = sum_j P[k, j] He_j(u)`` for ``k <= order`` (read-only, built once per order)."""
     p = np.zeros((order + 1, order + 1))
     # u^k = sum_i k! / (i! (k-2i)! 2^i) He_{k-2i}(u)
     for k in range(order + 1):
         for i in range(k // 2 + 1):
             p[k, k - 2 * i] = math.factorial(k) / (math.factorial(i) * math.factorial(k - 2 * i) * 2**i)
+    p.setflags(write=False)
     return p
 
 
@@ -421,14 +443,13 @@ class _GaussianPlan:
         # K(u)^2 = exp(-u^2) / (2 pi) = f(sqrt2 u) / (2 pi): a gaussian at h / sqrt 2
         self.order = order
         self.sources = _GaussSources(x, q, bandwidth / math.sqrt(power))
-        self.to_power = _hermite_to_power(order).T
         norm = (2.0 * math.pi) ** (-0.5 * power)
-        self.scale = norm * (1.0 / math.sqrt(power)) ** np.arange(order + 1)  # u = u' / sqrt(power)
+        scale = norm * (1.0 / math.sqrt(power)) ** np.arange(order + 1)  # u = u' / sqrt(power)
+        # sum q u^k K(u)^power = scale_k sum_j P[k, j] (sum q He_j(u') f(u')): one matrix for the transform
+        self.conv = np.ascontiguousarray(_hermite_to_power(order).T * scale)
 
     def __call__(self, points: np.ndarray) -> np.ndarray:
-        raw = self.sources.transform(points, self.order)  # sum q He_k(u') f(u')
-        flat = raw.reshape(-1, self.order + 1)  # one 2-D product, not one per point
-        return ((flat @ self.to_power) * self.scale).reshape(raw.shape)  # sum q u^k K(u)^power
+        return self.sources.transform(points, self.conv)
 
 
 # ---------------------------------------------------------------------------
