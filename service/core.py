@@ -46,6 +46,7 @@ class Service:
                 "gzip_min_bytes": settings.gzip_min_bytes,
                 "gzip_level": settings.gzip_level,
                 "log_level": settings.log_level,
+                "worker_nice": settings.worker_nice,
             },
             on_event=self.metrics.on_pool_event,
         )

@@ -48,6 +48,7 @@ STARTUP_TIMEOUT = 60.0
 _SMALL = struct.Struct("!i")
 _LARGE = struct.Struct("!Q")
 _STREAM_LIMIT = 1 << 20
+_JOIN_LIMIT = 1 << 20  # jobs up to this size are framed by copying (cheaper than a second system call)
 _BLAS_THREAD_VARIABLES = ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS")
 
 
@@ -93,8 +94,12 @@ class _Worker:
     def send(self, job: Job) -> None:
         """Queue one framed job on the socket (non-blocking; the transport sends what it can now)."""
         payload = pickle.dumps(job, protocol=pickle.HIGHEST_PROTOCOL)
-        self.writer.write(_frame(payload))
-        self.writer.write(payload)
+        if len(payload) <= _JOIN_LIMIT:
+            # one write: the worker wakes to a whole message, not to a header it must then wait behind
+            self.writer.write(_frame(payload) + payload)
+        else:
+            self.writer.write(_frame(payload))
+            self.writer.write(payload)
 
     async def receive(self) -> Outcome:
         """Wait for the answer to the job last sent (flow control first, then the framed outcome)."""

@@ -51,6 +51,7 @@ class Settings(BaseSettings):
     deadline_seconds: float = Field(30.0, gt=0, le=3600, description="Per-request deadline (waiting plus work); past it the work is stopped and the answer is 503.")
     drain_seconds: float = Field(20.0, ge=0, le=3600, description="On SIGTERM, how long in-flight requests may take to finish before the process exits.")
     retry_after_seconds: int = Field(2, ge=1, le=3600, description="Value of Retry-After on 503 answers when the service sheds load.")
+    worker_nice: int = Field(5, ge=0, le=19, description="Niceness added to worker processes, which also run as batch (throughput) tasks on Linux, so the HTTP process answers first when the CPU is short; 0 keeps the default scheduling.")
 
     # Request limits
     max_body_bytes: int = Field(64 * MIB, ge=1024, description="Largest request body in bytes (413 beyond, checked while reading).")

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import ctypes.util
+import os
 import sys
 
 import pytest
@@ -14,3 +15,23 @@ from service.worker import tune_allocator
 def test_allocator_tuning_is_accepted_by_glibc() -> None:
     # mallopt returns 1 on success (glibc manual, "Malloc Tunable Parameters").
     assert tune_allocator() is True
+
+
+@pytest.mark.skipif(not sys.platform.startswith("linux"), reason="SCHED_BATCH is Linux scheduling")
+@pytest.mark.parametrize("nice", [0, 5])
+def test_workers_run_as_batch_tasks_behind_the_http_process(nice: int) -> None:
+    # sched(7): SCHED_BATCH threads are "mildly disfavored in scheduling decisions" on wakeup;
+    # setpriority(2): raising one's own niceness needs no privilege.
+    from .conftest import Harness
+
+    h = Harness(workers=1, worker_nice=nice)
+    try:
+        pids = [w.pid for w in h.service.pool._all]
+        assert len(pids) == 1
+        expected_policy = os.SCHED_BATCH if nice else os.SCHED_OTHER
+        assert os.sched_getscheduler(pids[0]) == expected_policy
+        assert os.getpriority(os.PRIO_PROCESS, pids[0]) - os.getpriority(os.PRIO_PROCESS, 0) == nice
+        assert os.sched_getscheduler(0) == os.SCHED_OTHER  # the HTTP side keeps the default policy
+        assert h.post("/v1/smooth", json={"x": [1, 2, 3, 4], "y": [1, 3, 2, 4], "bandwidth": 1.5}).status_code == 200
+    finally:
+        h.close()
