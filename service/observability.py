@@ -14,6 +14,7 @@ import secrets
 import traceback
 from typing import Any
 
+from starlette.requests import ClientDisconnect
 from starlette.types import ASGIApp, Message, Receive, Scope, Send
 
 from . import logs
@@ -24,6 +25,7 @@ access_log = logging.getLogger("bandwise.access")
 error_log = logging.getLogger("bandwise.error")
 
 _REQUEST_ID = re.compile(r"^[A-Za-z0-9._:-]{1,128}$")
+CLIENT_CLOSED = 499
 
 
 class _RequestIds:
@@ -60,7 +62,9 @@ class ObservabilityMiddleware:
     An incoming ``X-Request-ID`` is kept if it is 1-128 characters of
     ``[A-Za-z0-9._:-]``; otherwise a new id is made (a random per-process prefix and a counter).  An exception
     that escapes the app is logged with its traceback and answered with a
-    500 problem carrying the request id (never the trace).
+    500 problem carrying the request id (never the trace).  A client that
+    disconnects before its body has arrived is logged and counted with status
+    499 (no answer can reach it) rather than as an internal error.
     """
 
     def __init__(self, app: ASGIApp, metrics: Metrics, counters: ServiceCounters, access: bool = True) -> None:
@@ -104,6 +108,11 @@ class ObservabilityMiddleware:
             self.counters.active_api += 1
         try:
             await self.app(scope, receive, send_with_id)
+        except ClientDisconnect:
+            # The client went away before its body arrived: nobody to answer, nothing to fix here.
+            # Counted and logged as 499, the status gateways use for "client closed request".
+            status = CLIENT_CLOSED
+            state["problem"] = "client-disconnected"
         except Exception as exc:  # noqa: BLE001 - the last resort: log it, answer 500 without the trace
             error_log.error(
                 "unhandled exception",

@@ -226,3 +226,28 @@ def test_access_log_writer_writes_on_size_and_on_its_timer() -> None:
 def test_generated_request_ids_are_distinct_across_many_requests(api: Harness) -> None:
     ids = {api.get("/healthz").headers["x-request-id"] for _ in range(200)}
     assert len(ids) == 200 and all(len(i) == 32 and int(i, 16) >= 0 for i in ids)
+
+
+def test_client_that_disconnects_before_its_body_arrives_is_a_499_not_an_error(api: Harness, caplog: pytest.LogCaptureFixture) -> None:
+    sent: list[dict] = []
+
+    async def receive() -> dict:
+        return {"type": "http.disconnect"}
+
+    async def send(message: dict) -> None:
+        sent.append(message)
+
+    scope = {
+        "type": "http", "asgi": {"version": "3.0"}, "http_version": "1.1", "method": "POST", "scheme": "http",
+        "path": "/v1/smooth", "raw_path": b"/v1/smooth", "root_path": "", "query_string": b"",
+        "headers": [(b"host", b"bandwise.test"), (b"content-type", b"application/json"), (b"content-length", b"100"), (b"x-request-id", b"gone-1")],
+        "client": ("127.0.0.1", 50000), "server": ("127.0.0.1", 8000),
+    }
+    caplog.set_level(logging.INFO, logger="bandwise")
+    before = api.service.metrics.registry.get_sample_value("bandwise_requests_total", {"route": "/v1/smooth", "method": "POST", "status": "499"}) or 0.0
+    api.run(api.app(scope, receive, send))
+    assert sent == []  # nothing can reach a client that has gone
+    assert not [r for r in caplog.records if r.name == "bandwise.error"]
+    after = api.service.metrics.registry.get_sample_value("bandwise_requests_total", {"route": "/v1/smooth", "method": "POST", "status": "499"})
+    assert after == before + 1
+    assert api.post("/v1/smooth", json=BODY).status_code == 200
