@@ -21,8 +21,8 @@ from . import __version__
 from .core import Service
 from .docs_text import API_DESCRIPTION
 from .errors import PROBLEM_MEDIA_TYPE, ProblemError, field_errors, problem_document
-from .logs import flush_access_log
 from .hot_routes import HOT_KINDS, HotRoutesMiddleware
+from .logs import flush_access_log
 from .observability import ObservabilityMiddleware, request_id_of
 from .openapi import build_openapi
 from .routes import install_routes

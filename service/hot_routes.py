@@ -1,13 +1,13 @@
 """A direct path for the numerical POST routes, in front of FastAPI's router.
 
 ``POST /v1/smooth``, ``/v1/smooth/batch`` and ``/v1/bandwidth`` take the raw
-body and hand it to a worker; FastAPI's routing, dependency solving and
-exception layers add nothing to that but time (about a tenth of a small
-request's cost in the HTTP process).  This middleware answers those three
-exactly as their FastAPI routes do (same guard, same submit, same problem
-documents) and lets everything else, including other methods on the same
-paths, through to FastAPI.  The routes stay registered, so the OpenAPI
-schema, ``405`` answers and the metrics' route labels are unchanged.
+body and hand it to a worker; FastAPI's route matching, dependency solving
+and wrapper layers add nothing to that but time on every small request.
+This middleware answers those three exactly as their FastAPI routes do (same
+guard, same submit, same problem documents) and lets everything else,
+including other methods on the same paths and requests under a root path,
+through to FastAPI.  The routes stay registered, so the OpenAPI schema,
+``405`` answers and the metrics' route labels are unchanged.
 """
 
 from __future__ import annotations

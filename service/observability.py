@@ -6,11 +6,11 @@ small requests stays in the microseconds.
 
 from __future__ import annotations
 
+import itertools
 import logging
 import re
-import time
-import itertools
 import secrets
+import time
 import traceback
 from typing import Any
 
