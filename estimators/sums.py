@@ -380,12 +380,17 @@ class _GaussSources:
 
         ``D_j = sum_i q_i He_j(u_i) exp(-u_i^2/2)`` with ``u_i = (x_i - t)/h``
         (the identity for ``conv`` gives the derivatives themselves).
-        ``points`` ascending. Returns shape ``(m, ncol, conv.shape[1])``.
+        ``points`` in any order (ascending needs no sort). Returns shape ``(m, ncol, conv.shape[1])``.
         """
         m = points.size
         nk = conv.shape[1]
         if m == 0:
             return np.zeros((0, self.ncol, nk))
+        if not _is_sorted(points):
+            perm = np.argsort(points, kind="stable")
+            out = np.empty((m, self.ncol, nk))
+            out[perm] = self.transform(points[perm], conv)
+            return out
         out = np.empty((m, self.ncol, nk))
         if self._dense:
             _compiled.gauss_transform(

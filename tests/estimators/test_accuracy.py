@@ -213,3 +213,32 @@ def test_degrees_of_freedom_and_residual_scale_match_the_dense_smoother_matrix(k
     assert s.effective_df == pytest.approx(tr_l, rel=1e-9)
     assert s.variance_df == pytest.approx(tr_var, rel=1e-9)
     assert s.residual_scale == pytest.approx(sigma, rel=1e-9)
+
+
+@pytest.mark.parametrize("cache_tiles", [16384, 8])
+def test_gauss_transform_matches_the_direct_hermite_sum_in_any_point_order(cache_tiles: int, monkeypatch: pytest.MonkeyPatch) -> None:
+    # d^j/dw^j sum_i q_i exp(-(x_i - t)^2 / 2h^2) in units of h = sum_i q_i He_j(u_i) exp(-u_i^2 / 2),
+    # u_i = (x_i - t) / h (probabilists' Hermite polynomials, He_{j+1} = u He_j - j He_{j-1};
+    # Abramowitz & Stegun 1964, 22.7.14). Points are given shuffled: the compiled pass must not
+    # rely on their order, and must agree with itself whether a tile was cached or not.
+    from estimators import sums
+
+    monkeypatch.setattr(sums, "_LOCAL_CACHE_TILES", cache_tiles)
+    rng = np.random.default_rng(11)
+    x = np.sort(rng.uniform(0.0, 8.0, 300))
+    q = np.column_stack([rng.uniform(0.5, 1.5, x.size), rng.normal(size=x.size)])
+    h = 0.35
+    sources = sums._GaussSources(x, q, h)
+    points = rng.permutation(np.concatenate([rng.uniform(-2.0, 10.0, 120), x[::7]]))
+    order = 3
+    ours = sources.transform(points, np.eye(order + 1))
+    u = (x[None, :] - points[:, None]) / h
+    he = [np.ones_like(u), u]
+    for j in range(1, order):
+        he.append(u * he[j] - j * he[j - 1])
+    base = np.exp(-0.5 * u * u) * (np.abs(u) <= sums.GAUSSIAN_CUTOFF + 2.0)  # the transform keeps whole tiles in reach
+    reference = np.stack([(he[j] * base) @ q for j in range(order + 1)], axis=-1)  # (m, ncol, order + 1)
+    scale = np.abs(q).sum(axis=0)[None, :, None]
+    assert np.max(np.abs(ours - reference) / scale) <= 1e-12
+    again = sources.transform(np.sort(points), np.eye(order + 1))  # every tile now cached
+    assert np.max(np.abs(again - ours[np.argsort(points, kind="stable")]) / scale) <= 1e-12
