@@ -675,9 +675,8 @@ def gauss_transform(points, origin, h, tile_lo, tiles, moments, translations, re
     pw = np.empty((nterms, _LANES))
     acc = np.empty(_LANES)
     m = points.size
-    w = np.empty(m + _LANES)
+    w = np.empty(m)
     first = 0
-    previous = -math.inf
     i0 = 0
     while i0 < m:
         tile = np.floor((points[i0] - origin) / h)
@@ -693,11 +692,8 @@ def gauss_transform(points, origin, h, tile_lo, tiles, moments, translations, re
         if rel >= 0.0 and rel < span:
             t = int(rel)
             if not filled[t]:
-                if tile < previous:
-                    first = 0  # points out of order: search the sources from the start
                 first = _translate_tile(tile, tiles, moments, translations, reach, first, local[t])
                 filled[t] = True
-                previous = tile
             _evaluate_run(local[t], ratio, conv, w, i0, i1, coef, pw, acc, out)
         else:
             for i in range(i0, i1):
