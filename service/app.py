@@ -134,7 +134,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
         app.mount("/docs/assets", StaticFiles(directory=assets), name="docs-assets")
     app.openapi = lambda: build_openapi(app)  # type: ignore[method-assign]
     hot = {r.path: r for router in routers for r in router.routes if isinstance(r, APIRoute) and r.path in HOT_KINDS and "POST" in r.methods}
-    if set(hot) != set(HOT_KINDS):
+    if set(hot) != set(HOT_KINDS):  # the direct path must not answer for a route that does not exist
         raise RuntimeError(f"numerical POST routes not registered: {sorted(set(HOT_KINDS) - set(hot))}")
     app.add_middleware(HotRoutesMiddleware, service=service, routes=hot, on_problem=_on_problem)  # innermost: inside CORS and logging
     if settings.cors_origins:

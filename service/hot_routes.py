@@ -37,8 +37,9 @@ class HotRoutesMiddleware:
     service : Service
         Does the work, as for the routed endpoints.
     routes : dict
-        The registered route object for each hot path, set as ``scope["route"]``
-        so logs and metrics name the route template as for routed requests.
+        For each path of :data:`HOT_KINDS`, the registered route object, set as
+        ``scope["route"]`` so logs and metrics name the route template as for
+        routed requests.
     on_problem : callable
         The app's handler turning a :class:`ProblemError` into a response.
     """
@@ -46,16 +47,14 @@ class HotRoutesMiddleware:
     def __init__(self, app: ASGIApp, service: Service, routes: dict[str, BaseRoute], on_problem: ProblemHandler) -> None:
         self.app = app
         self.service = service
-        self.routes = routes
+        self.targets = {path: (kind, routes[path]) for path, kind in HOT_KINDS.items()}
         self.on_problem = on_problem
 
     async def __call__(self, scope: Scope, receive: Receive, send: Send) -> None:
         if scope["type"] == "http" and scope["method"] == "POST" and not scope.get("root_path"):
-            path = scope["path"]
-            kind = HOT_KINDS.get(path)
-            route = self.routes.get(path)
-            if kind is not None and route is not None:
-                scope["route"] = route
+            target = self.targets.get(scope["path"])
+            if target is not None:
+                kind, scope["route"] = target
                 request = Request(scope, receive, send)
                 try:
                     response = await self.service.handle(request, kind)
