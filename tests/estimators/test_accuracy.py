@@ -242,3 +242,23 @@ def test_gauss_transform_matches_the_direct_hermite_sum_in_any_point_order(cache
     assert np.max(np.abs(ours - reference) / scale) <= 1e-12
     again = sources.transform(np.sort(points), np.eye(order + 1))  # every tile now cached
     assert np.max(np.abs(again - ours[np.argsort(points, kind="stable")]) / scale) <= 1e-12
+
+
+@pytest.mark.parametrize("offset", range(0, 12))
+def test_gaussian_translation_polynomial_matches_the_kernel_and_its_derivatives(offset: int) -> None:
+    # Closed form: d^j/ds^j exp(-(D+s)^2/2) = (-1)^j He_j(D+s) exp(-(D+s)^2/2), probabilists' Hermite
+    # polynomials (Abramowitz & Stegun 1964, 22.2.15 and 22.7.14) from scipy.special. The polynomial
+    # replaces the kernel on |s| <= 1 (one tile width each side); the bounds are a few rounding
+    # units, below what a 30-term Taylor series reaches for the second derivative (2e-14 at D = 0).
+    from numpy.polynomial import polynomial as P
+    from scipy.special import eval_hermitenorm
+
+    from estimators import sums
+
+    coef = sums.economized_kernel(float(offset))
+    assert coef.size == sums.N_TERMS
+    s = np.linspace(-1.0, 1.0, 2001)
+    u = offset + s
+    for j, bound in ((0, 1e-15), (1, 2e-15), (2, 1e-14)):
+        exact = (-1.0) ** j * eval_hermitenorm(j, u) * np.exp(-0.5 * u * u)
+        assert np.max(np.abs(P.polyval(s, P.polyder(coef, j)) - exact)) <= bound
