@@ -326,22 +326,9 @@ def _sorted_groups(keys: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
 _TAYLOR_TERMS = 48
 
 
-def _chebyshev_monomials(count: int) -> list[list[int]]:
-    """Integer power-basis coefficients of ``T_0 .. T_{count-1}`` (``T_{m+1} = 2 s T_m - T_{m-1}``)."""
-    rows = [[1], [0, 1]]
-    while len(rows) < count:
-        prev, cur = rows[-2], rows[-1]
-        nxt = [0] + [2 * c for c in cur]
-        for i, c in enumerate(prev):
-            nxt[i] -= c
-        rows.append(nxt)
-    return rows[:count]
-
-
 _FACTORIALS = np.array([math.factorial(j) for j in range(2 * N_TERMS)], dtype=float)
 _FACTORIALS.setflags(write=False)
 _FACTORIALS_TAYLOR = np.array([math.factorial(j) for j in range(_TAYLOR_TERMS)], dtype=float)
-_CHEBYSHEV = _chebyshev_monomials(_TAYLOR_TERMS)
 
 #: local expansions kept per source set, in tiles; beyond it each call translates afresh
 _LOCAL_CACHE_TILES = 16384
@@ -434,26 +421,21 @@ class _GaussSources:
         return out
 
 
-def economized_kernel(offset: float, terms: int = N_TERMS) -> np.ndarray:
-    """Power-basis coefficients ``a_n`` of a degree ``< terms`` polynomial with ``sum a_n s^n ~ exp(-(offset + s)^2 / 2)`` on ``|s| <= 1``.
+def economized_kernel(offset: float) -> np.ndarray:
+    """Power-basis coefficients ``a_n`` (``n < N_TERMS``) with ``sum a_n s^n ~ exp(-(offset + s)^2 / 2)`` on ``|s| <= 1``.
 
-    The Taylor series about ``offset`` to :data:`_TAYLOR_TERMS` terms, whose
-    top terms are then traded one at a time for lower ones by subtracting
-    ``a_m T_m(s) / 2^(m-1)`` (Lanczos economization): each step changes the
-    polynomial by at most ``|a_m| / 2^(m-1)`` on the interval, and the result
-    is within rounding of the Chebyshev truncation of the kernel (see the
-    module notes for the bound). Every subtracted term is small, so the
-    computation is well conditioned in double precision.
+    The Taylor series about ``offset`` to :data:`_TAYLOR_TERMS` terms,
+    rewritten as a Chebyshev series, cut after ``N_TERMS`` terms and written
+    back in powers of ``s`` (Lanczos economization): the cut changes the
+    polynomial by at most the sum of the dropped coefficients on the interval,
+    and the result is within rounding of the Chebyshev truncation of the
+    kernel (see the module notes for the bound).
     """
-    a = list(_hermite_functions(np.array(float(offset)), _TAYLOR_TERMS) / _FACTORIALS_TAYLOR)
-    cheb = _CHEBYSHEV
-    for m in range(_TAYLOR_TERMS - 1, terms - 1, -1):
-        lead = a[m] / float(cheb[m][m])
-        if lead != 0.0:
-            for n in range(m - 2, -1, -2):  # T_m has the parity of m
-                a[n] -= lead * float(cheb[m][n])
-        a[m] = 0.0
-    return np.array(a[:terms])
+    taylor = _hermite_functions(np.array(float(offset)), _TAYLOR_TERMS) / _FACTORIALS_TAYLOR
+    power = np.polynomial.chebyshev.cheb2poly(np.polynomial.chebyshev.poly2cheb(taylor)[:N_TERMS])
+    out = np.zeros(N_TERMS)
+    out[: power.size] = power  # the conversion drops trailing zeros
+    return out
 
 
 def _translation_matrices() -> np.ndarray:
