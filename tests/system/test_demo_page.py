@@ -113,12 +113,14 @@ class Page:
         self.page = self.context.new_page()
         self.errors: list[str] = []
         self.smooth: list[Any] = []
+        self.sent: list[Any] = []
         self.page.on("pageerror", lambda exc: self.errors.append(f"pageerror: {exc}"))
         self.page.on("console", lambda msg: msg.type == "error" and self.errors.append(f"console: {msg.text}"))
         self.page.on(
             "response",
             lambda r: r.url == f"{base}/v1/smooth" and r.request.method == "POST" and self.smooth.append(r),
         )
+        self.page.on("request", lambda r: r.url == f"{base}/v1/smooth" and r.method == "POST" and self.sent.append(r))
         # Nothing may leave loopback: any other address is refused before a connection is made.
         self.page.route(re.compile(r"^(?!http://127\.0\.0\.1:\d+/).*"), lambda route: route.abort())
 
@@ -130,7 +132,15 @@ class Page:
             self.page.wait_for_timeout(50)
         assert len(self.smooth) > seen, "the page sent no new POST /v1/smooth"
         self.page.wait_for_function("() => document.body.dataset.busy === '0'", timeout=WAIT_MS)
-        response = self.smooth[-1]
+        # The drawn exchange is the answer to the last request sent; its response event can reach
+        # this process after the page has drawn it, behind the answer to a request it superseded.
+        last = self.sent[-1]
+        for _ in range(WAIT_MS // 50):
+            if any(r.request is last for r in self.smooth):
+                break
+            self.page.wait_for_timeout(50)
+        response = next((r for r in reversed(self.smooth) if r.request is last), None)
+        assert response is not None, "no answer recorded for the last POST /v1/smooth"
         assert response.status == 200, response.text()
         return json.loads(response.request.post_data), response.json()
 
