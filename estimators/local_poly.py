@@ -27,7 +27,7 @@ import numpy as np
 from .cautions import Caution
 from .kernels import Kernel, get_kernel
 from . import _compiled
-from .sums import MomentPlan, binned_grid_allowed, binned_grid_size, compiled_shape, moment_sums, window_counts
+from .sums import DATA_POINT_TERMS, N_TERMS, MomentPlan, binned_grid_allowed, binned_grid_size, compiled_shape, moment_sums, window_counts
 
 if TYPE_CHECKING:  # pragma: no cover
     from .bandwidth import Selection
@@ -407,7 +407,7 @@ class Smoother:
         points = self._data_sorted
         plan = MomentPlan(
             self.sample.xs, self.sample.ws, self.kernel_spec, self.bandwidth, 2 * p, power=2,
-            engine=self._engine_for(points.size),
+            engine=self._engine_for(points.size), gauss_terms=DATA_POINT_TERMS.get(p, N_TERMS),
         )
         q2 = plan(points)[0][:, 0, :]
         a = sol.inv[:, 0, :]

@@ -215,6 +215,22 @@ def test_degrees_of_freedom_and_residual_scale_match_the_dense_smoother_matrix(k
     assert s.residual_scale == pytest.approx(sigma, rel=1e-9)
 
 
+@pytest.mark.parametrize("degree", [0, 1, 2])
+@pytest.mark.parametrize(("seed", "span", "h"), [(11, 10.0, 1.2), (3, 10.0, 0.4), (5, 50.0, 2.0)])
+def test_gaussian_variance_term_with_the_shorter_data_point_transform_stays_near_rounding(seed: int, span: float, h: float, degree: int) -> None:
+    # tr(L' W L W^-1) from the explicit smoother matrix (Hastie & Tibshirani 1990, Section 3.4). The
+    # squared kernel's sums at the data points use fewer transform terms (estimators.sums.DATA_POINT_TERMS);
+    # measured worst case over these designs 4e-13. Two terms fewer at any degree exceed the bound.
+    rng = np.random.default_rng(seed)
+    x = rng.uniform(0.0, span, 200)
+    y = np.sin(x) + rng.normal(0, 0.3, x.size)
+    w = rng.uniform(0.5, 2.0, x.size)
+    s = fit(x, y, kernel="gaussian", bandwidth=h, degree=degree, weights=w, engine="exact")
+    big_l = _dense_smoother_matrix(x, w, "gaussian", h, degree)
+    tr_var = float(np.sum(w[:, None] * big_l**2 / w[None, :]))
+    assert abs(s.variance_df - tr_var) <= 2e-12 * tr_var
+
+
 @pytest.mark.parametrize("cache_tiles", [16384, 8])
 def test_gauss_transform_matches_the_direct_hermite_sum_in_any_point_order(cache_tiles: int, monkeypatch: pytest.MonkeyPatch) -> None:
     # d^j/dw^j sum_i q_i exp(-(x_i - t)^2 / 2h^2) in units of h = sum_i q_i He_j(u_i) exp(-u_i^2 / 2),
