@@ -36,7 +36,7 @@ import numpy as np
 from numba import njit
 
 __all__ = ["window_moments", "window_fit", "solve_local", "linear_bin", "keys_interpolate", "gather_sorted",
-           "gauss_tile_moments", "gauss_translate", "gauss_evaluate", "gauss_transform"]
+           "gauss_tile_moments", "gauss_translate", "gauss_evaluate", "gauss_transform", "hankel_quadratic_sum"]
 
 # reassociation and fused multiply-add only: no assumptions about NaN or infinity
 _FAST = {"reassoc", "contract"}
@@ -449,6 +449,22 @@ def solve_local(mom, lo, hi, distinct_prefix, degree, singular, beta, inv, deg_u
     for k in range(mom.shape[0]):
         distinct = distinct_prefix[hi[k]] - distinct_prefix[lo[k] + 1] + 1 if hi[k] > lo[k] else 0
         deg_used[k] = _solve_point(mom[k, 0], mom[k, 1], distinct, degree, singular, beta[k], inv[k])
+
+
+@njit(cache=True, nogil=True, error_model="numpy")
+def hankel_quadratic_sum(a, q, w):  # pragma: no cover - compiled
+    """``sum_k w_k a_k^T Q_k a_k`` with ``Q_k[i, j] = q[k, i + j]``, skipping NaN terms (as ``np.nansum``)."""
+    total = 0.0
+    p1 = a.shape[1]
+    for k in range(a.shape[0]):
+        quad = 0.0
+        for i in range(p1):
+            for j in range(p1):
+                quad += a[k, i] * a[k, j] * q[k, i + j]
+        term = quad * w[k]
+        if not math.isnan(term):
+            total += term
+    return total
 
 
 @njit(cache=True, nogil=True, error_model="numpy")

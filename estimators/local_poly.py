@@ -409,15 +409,8 @@ class Smoother:
             self.sample.xs, self.sample.ws, self.kernel_spec, self.bandwidth, 2 * p, power=2,
             engine=self._engine_for(points.size), gauss_terms=DATA_POINT_TERMS.get(p, N_TERMS),
         )
-        q2 = plan(points)[0][:, 0, :]
-        a = sol.inv[:, 0, :]
-        # a^T Q a with Q_ij = q2[i + j], term by term (a few vector operations, no einsum)
-        quad = np.zeros(points.size)
-        for i in range(p + 1):
-            for j in range(p + 1):
-                quad += a[:, i] * a[:, j] * q2[:, i + j]
-        quad *= self.sample.w[self.sample.order]
-        return float(np.nansum(quad))
+        q2 = plan.sums(points)[:, 0, :]
+        return _compiled.hankel_quadratic_sum(sol.inv[:, 0, :], q2, self.sample.w[self.sample.order])
 
     @cached_property
     def residual_scale(self) -> float:

@@ -651,6 +651,12 @@ class MomentPlan:
         )
         return mom, lo, hi
 
+    def sums(self, points: np.ndarray) -> np.ndarray:
+        """The moment sums alone (no window bounds), shape ``(m, ncol, order + 1)``."""
+        if self._evaluate is None or points.size == 0 or self._evaluate == self._compact:
+            return self(points)[0]
+        return self._evaluate(points)
+
     def __call__(self, points: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         m = points.size
         if self._evaluate is None or m == 0:

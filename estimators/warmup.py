@@ -24,6 +24,7 @@ def warm() -> float:
         for degree in (0, 1, 2):
             s = fit(x, y, kernel=kernel, degree=degree, bandwidth=1.0)
             s.fitted()
+            s.residual_scale
             s.predict(np.linspace(0, 10, 7))
             s.moments(np.linspace(0, 10, 7), np.ones((x.size, 3)), 4, power=2)
     grid = np.linspace(0.5, 9.5, 9)
