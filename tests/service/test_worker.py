@@ -35,3 +35,30 @@ def test_workers_run_as_batch_tasks_behind_the_http_process(nice: int) -> None:
         assert h.post("/v1/smooth", json={"x": [1, 2, 3, 4], "y": [1, 3, 2, 4], "bandwidth": 1.5}).status_code == 200
     finally:
         h.close()
+
+
+@pytest.mark.skipif(not sys.platform.startswith("linux"), reason="net.core.wmem_max is a Linux setting")
+def test_worker_sockets_ask_for_buffers_a_large_body_fits_in() -> None:
+    # socket(7): SO_SNDBUF/SO_RCVBUF are capped at net.core.wmem_max/rmem_max, and Linux reports
+    # twice the value set (room for bookkeeping). The default (net.core.wmem_default) is what
+    # a socket pair gets without asking.
+    import socket
+    from pathlib import Path
+
+    from service.pool import _SOCKET_BUFFER
+
+    from .conftest import Harness
+
+    caps = {name: int(Path(f"/proc/sys/net/core/{name}").read_text()) for name in ("wmem_max", "rmem_max", "wmem_default")}
+    h = Harness(workers=1)
+    try:
+        worker = next(iter(h.service.pool._all))
+        sock = worker.writer.get_extra_info("socket")
+        sent = sock.getsockopt(socket.SOL_SOCKET, socket.SO_SNDBUF)
+        received = sock.getsockopt(socket.SOL_SOCKET, socket.SO_RCVBUF)
+        assert sent >= 2 * min(_SOCKET_BUFFER, caps["wmem_max"])
+        assert received >= 2 * min(_SOCKET_BUFFER, caps["rmem_max"])
+        if caps["wmem_max"] > caps["wmem_default"]:
+            assert sent > 2 * caps["wmem_default"]  # asked for more than the default, and got it
+    finally:
+        h.close()
