@@ -476,7 +476,9 @@ def _translation_matrices(terms: int = N_TERMS) -> np.ndarray:
     return out
 
 
-_translation_matrices()  # built at import, not on the first request
+for _terms in sorted({N_TERMS, *DATA_POINT_TERMS.values()}):
+    _translation_matrices(_terms)  # built at import (and in the preloaded worker parent), not on a first request
+del _terms
 
 
 @lru_cache(maxsize=None)
