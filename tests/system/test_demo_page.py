@@ -135,11 +135,12 @@ class Page:
         # The drawn exchange is the answer to the last request sent; its response event can reach
         # this process after the page has drawn it, behind the answer to a request it superseded.
         last = self.sent[-1]
-        for _ in range(WAIT_MS // 50):
-            if any(r.request is last for r in self.smooth):
+        response = None
+        for _ in range(WAIT_MS // 50):  # bounded, as above
+            response = next((r for r in reversed(self.smooth) if r.request is last), None)
+            if response is not None:
                 break
             self.page.wait_for_timeout(50)
-        response = next((r for r in reversed(self.smooth) if r.request is last), None)
         assert response is not None, "no answer recorded for the last POST /v1/smooth"
         assert response.status == 200, response.text()
         return json.loads(response.request.post_data), response.json()
