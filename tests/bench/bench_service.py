@@ -11,7 +11,9 @@ Every figure is a ratio to a baseline measured in the same run on the same machi
    validates the same request model and returns a body of the same size, both
    served by one uvicorn process with the same settings and driven by the same
    keep-alive load generator, in interleaved rounds (best round of each, and
-   the median ratio of adjacent rounds).  Target >= 0.6.
+   the median ratio of adjacent rounds).  Target >= 0.6.  A plain ASGI
+   callable under the same uvicorn settings runs in the same rounds; its CPU
+   per request is the floor both servers stand on.
 3. **/healthz under load**: latency percentiles of ``GET /healthz`` while two
    heavy fits run, for the service (worker processes) and for the same
    handlers run in a thread pool inside the HTTP process.  This is the
@@ -128,6 +130,35 @@ def bare_app(body_file: str) -> Any:
     @app.get("/healthz")
     async def healthz() -> Response:
         return Response(b'{"status":"ok"}', media_type="application/json")
+
+    return app
+
+
+def raw_app(body_file: str) -> Any:
+    """A plain ASGI callable that reads the body and returns a fixed body of the same size.
+
+    No framework and no validation: what one request costs in this uvicorn
+    setup alone (HTTP parsing, two socket writes), the floor under both the
+    bare endpoint and the service's HTTP process.
+    """
+    payload = Path(body_file).read_bytes()
+    headers = [(b"content-type", b"application/json"), (b"content-length", str(len(payload)).encode())]
+
+    async def app(scope: dict[str, Any], receive: Any, send: Any) -> None:
+        if scope["type"] == "lifespan":
+            while True:
+                message = await receive()
+                if message["type"] == "lifespan.startup":
+                    await send({"type": "lifespan.startup.complete"})
+                else:
+                    await send({"type": "lifespan.shutdown.complete"})
+                    return
+        more = True
+        while more:
+            message = await receive()
+            more = message.get("more_body", False)
+        await send({"type": "http.response.start", "status": 200, "headers": headers})
+        await send({"type": "http.response.body", "body": payload})
 
     return app
 
@@ -311,13 +342,19 @@ def bench_small(service: Proc, total: int, connections: int, kernel: str) -> tup
         fh.write(response)
         path = fh.name
     bare = Proc([sys.executable, "-m", "tests.bench.bench_service", "--serve-bare", path])
+    raw = Proc([sys.executable, "-m", "tests.bench.bench_service", "--serve-raw", path])
     try:
         bare.wait("/healthz")
-        asyncio.run(_throughput(bare.port, request, 200, connections))  # warm
+        raw.wait("/healthz")  # it answers every path
+        asyncio.run(_throughput(raw.port, request, 200, connections))  # warm
+        asyncio.run(_throughput(bare.port, request, 200, connections))
         asyncio.run(_throughput(service.port, request, 200, connections))
         ours, theirs = [], []
-        cpu = {"bare": 0.0, "http": 0.0, "workers": 0.0}
+        cpu = {"raw": 0.0, "bare": 0.0, "http": 0.0, "workers": 0.0}
         for _ in range(_SMALL_ROUNDS):  # interleaved, best of N each (a busy neighbour on a shared machine hits one round, not all)
+            r0 = _cpu_seconds(raw.p.pid, children=False)
+            asyncio.run(_throughput(raw.port, request, total, connections))
+            cpu["raw"] += _cpu_seconds(raw.p.pid, children=False) - r0
             c0 = _cpu_seconds(bare.p.pid, children=False)
             theirs.append(asyncio.run(_throughput(bare.port, request, total, connections)))
             cpu["bare"] += _cpu_seconds(bare.p.pid, children=False) - c0
@@ -327,6 +364,7 @@ def bench_small(service: Proc, total: int, connections: int, kernel: str) -> tup
             cpu["workers"] += _cpu_seconds(service.p.pid, children=True) - w0
     finally:
         bare.stop()
+        raw.stop()
         os.unlink(path)
     per_request = {k: v / (_SMALL_ROUNDS * (total // connections) * connections) * 1000.0 for k, v in cpu.items()}
     paired = statistics.median(o / t for o, t in zip(ours, theirs))
@@ -410,10 +448,14 @@ def main(argv: list[str] | None = None) -> dict[str, Any]:
     parser = argparse.ArgumentParser(prog="bench_service")
     parser.add_argument("--quick", action="store_true", help="fewer repetitions")
     parser.add_argument("--serve-bare", metavar="BODY_FILE", help=argparse.SUPPRESS)
+    parser.add_argument("--serve-raw", metavar="BODY_FILE", help=argparse.SUPPRESS)
     parser.add_argument("--serve-threaded", action="store_true", help=argparse.SUPPRESS)
     args = parser.parse_args(argv or [])
     if args.serve_bare:
         _serve_with_uvicorn(bare_app(args.serve_bare))
+        return {}
+    if args.serve_raw:
+        _serve_with_uvicorn(raw_app(args.serve_raw))
         return {}
     if args.serve_threaded:
         _serve_with_uvicorn(threaded_app())
@@ -443,10 +485,10 @@ def main(argv: list[str] | None = None) -> dict[str, Any]:
     for kernel, (ours, theirs, ratio, size, _, paired) in small.items():
         print(f"| kernel {kernel} | {size} | {theirs:.0f} | {ours:.0f} | {ratio:.2f} | {paired:.2f} |")
     print()
-    print("| CPU per small request (ms) | bare endpoint | service HTTP process | service workers (parse, validate, fit, encode) |")
-    print("|---|---:|---:|---:|")
+    print("| CPU per small request (ms) | plain ASGI app, same uvicorn (floor) | bare endpoint | service HTTP process | service workers (parse, validate, fit, encode) |")
+    print("|---|---:|---:|---:|---:|")
     for kernel, (*_, cpu, _paired) in small.items():
-        print(f"| kernel {kernel} | {cpu['bare']:.3f} | {cpu['http']:.3f} | {cpu['workers']:.3f} |")
+        print(f"| kernel {kernel} | {cpu['raw']:.3f} | {cpu['bare']:.3f} | {cpu['http']:.3f} | {cpu['workers']:.3f} |")
     print()
     print("| GET /healthz latency | p50 (ms) | p99 (ms) | max (ms) | samples |")
     print("|---|---:|---:|---:|---:|")
