@@ -45,6 +45,8 @@ from .jobs import Job, Outcome
 log = logging.getLogger("bandwise.pool")
 
 STARTUP_TIMEOUT = 60.0
+#: seconds a worker has to leave on its own at shutdown before it is killed
+SHUTDOWN_GRACE = 1.0
 _SMALL = struct.Struct("!i")
 _LARGE = struct.Struct("!Q")
 _STREAM_LIMIT = 1 << 20
@@ -221,9 +223,15 @@ class WorkerPool:
             if not fut.done():
                 fut.set_exception(PoolClosed())
         workers, self._all, self._idle = list(self._all), set(), []
+        loop = asyncio.get_running_loop()
+        # Closing its socket ends an idle worker's loop, so it exits as a process should (and
+        # flushes what it holds); one still computing, or slow to go, is killed after the grace.
+        for w in workers:
+            w.killed_for = w.killed_for or "shutdown"
+            w.writer.close()
+        await asyncio.gather(*(loop.run_in_executor(self._threads, w.process.join, SHUTDOWN_GRACE) for w in workers), return_exceptions=True)
         for w in workers:
             w.kill("shutdown")
-        loop = asyncio.get_running_loop()
         await asyncio.gather(*(loop.run_in_executor(self._threads, w.process.join, 5.0) for w in workers), return_exceptions=True)
         self._threads.shutdown(wait=False, cancel_futures=True)
 

@@ -62,3 +62,38 @@ def test_worker_sockets_ask_for_buffers_a_large_body_fits_in() -> None:
             assert sent > 2 * caps["wmem_default"]  # asked for more than the default, and got it
     finally:
         h.close()
+
+
+def test_idle_workers_leave_on_their_own_at_shutdown_and_a_busy_one_is_stopped() -> None:
+    # multiprocessing.Process.exitcode: 0 after a normal return from the target, -N when ended by
+    # signal N. Closing the pool closes every worker's socket; an idle worker's loop then ends and it
+    # returns (0); one still computing is killed after the grace period (-SIGKILL).
+    import asyncio
+    import signal
+    import time
+
+    import orjson
+
+    from service.jobs import Job
+
+    from .conftest import Harness
+
+    n = 200_000  # with 5,000 bootstrap replicates: about 10^9 point-replicates, far beyond the grace period
+    heavy = orjson.dumps({"x": list(range(n)), "y": [i % 2 for i in range(n)], "bandwidth": 50.0, "kernel": "epanechnikov", "bands": {"replicates": 5000}})
+    h = Harness(workers=2)
+    pool = h.service.pool
+    processes = [w.process for w in pool._all]
+    running = asyncio.run_coroutine_threadsafe(pool.run(Job("smooth", heavy), 120.0), h.loop)
+    try:
+        stop = time.monotonic() + 30
+        while pool.busy != 1:
+            assert time.monotonic() < stop, "the heavy job never started"
+            time.sleep(0.01)
+    finally:
+        h.close()
+    try:
+        running.result(30)
+    except Exception:  # noqa: BLE001 - the job's own fate at shutdown is not what this test checks
+        pass
+    codes = sorted(p.exitcode for p in processes)
+    assert codes == [-signal.SIGKILL, 0]
