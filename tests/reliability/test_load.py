@@ -49,6 +49,7 @@ BURST_SECONDS = 5.5
 PAUSE_SECONDS = 1.5
 MAX_REQUESTS_PER_CLIENT_PER_BURST = 400
 REQUEST_TIMEOUT = 60.0
+KEEPALIVE_EXPIRY = 2.0  # below the server's keep-alive timeout (uvicorn: 5 s)
 WORKERS = 2
 PEAK_RSS_BOUND_MIB = 1024
 LEAK_TOLERANCE = 0.10
@@ -156,7 +157,12 @@ async def _load(base: str, process: psutil.Process) -> tuple[Log, list[int], int
     after_burst: list[int] = []
     peak = [0]
     stop_event = asyncio.Event()
-    limits = httpx.Limits(max_connections=CLIENTS, max_keepalive_connections=CLIENTS)
+    # RFC 9112, 9.6: either side may close an idle connection at any time, so a POST sent on a
+    # connection the server is closing at that moment fails without an answer. The server closes
+    # connections idle for uvicorn's keep-alive timeout (5 s); idle ones between bursts can reach
+    # it when a burst's last slow request finishes late. The client gives up its idle connections
+    # first, as clients behind a keep-alive server should, so such a race cannot occur here.
+    limits = httpx.Limits(max_connections=CLIENTS, max_keepalive_connections=CLIENTS, keepalive_expiry=KEEPALIVE_EXPIRY)
     async with httpx.AsyncClient(timeout=REQUEST_TIMEOUT, limits=limits) as client:
         sampler = asyncio.create_task(_sample_rss(process, stop_event, peak))
         for _ in range(BURSTS):
