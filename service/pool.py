@@ -225,7 +225,8 @@ class WorkerPool:
         workers, self._all, self._idle = list(self._all), set(), []
         loop = asyncio.get_running_loop()
         # Closing its socket ends an idle worker's loop, so it exits as a process should (and
-        # flushes what it holds); one still computing, or slow to go, is killed after the grace.
+        # flushes what it holds). A worker still computing is killed at once by the request
+        # waiting on it (its read fails); one that has not left within the grace is killed here.
         for w in workers:
             w.killed_for = w.killed_for or "shutdown"
             w.writer.close()

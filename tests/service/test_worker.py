@@ -67,7 +67,7 @@ def test_worker_sockets_ask_for_buffers_a_large_body_fits_in() -> None:
 def test_idle_workers_leave_on_their_own_at_shutdown_and_a_busy_one_is_stopped() -> None:
     # multiprocessing.Process.exitcode: 0 after a normal return from the target, -N when ended by
     # signal N. Closing the pool closes every worker's socket; an idle worker's loop then ends and it
-    # returns (0); one still computing is killed after the grace period (-SIGKILL).
+    # returns (0); one still computing is killed (-SIGKILL).
     import asyncio
     import signal
     import time
@@ -78,7 +78,7 @@ def test_idle_workers_leave_on_their_own_at_shutdown_and_a_busy_one_is_stopped()
 
     from .conftest import Harness
 
-    n = 200_000  # with 5,000 bootstrap replicates: about 10^9 point-replicates, far beyond the grace period
+    n = 200_000  # with 5,000 bootstrap replicates: about 10^9 point-replicates, still running at shutdown
     heavy = orjson.dumps({"x": list(range(n)), "y": [i % 2 for i in range(n)], "bandwidth": 50.0, "kernel": "epanechnikov", "bands": {"replicates": 5000}})
     h = Harness(workers=2)
     pool = h.service.pool
