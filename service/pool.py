@@ -304,6 +304,8 @@ class WorkerPool:
         self._all.discard(worker)
         self._on_event("restart", worker.killed_for or reason)
         log.warning("worker replaced", extra={"fields": {"pid": worker.pid, "reason": worker.killed_for or reason}})
+        if self._closed:
+            return  # close() reaps every worker itself; a second join from another thread would race it
         try:
             self._threads.submit(worker.process.join, 5.0)
         except RuntimeError:
