@@ -302,10 +302,10 @@ class WorkerPool:
     def _replace(self, worker: _Worker, reason: str) -> None:
         worker.kill(reason)
         self._all.discard(worker)
+        if self._closed:
+            return  # not replaced, and close() reaps it: a second join from another thread would race that one
         self._on_event("restart", worker.killed_for or reason)
         log.warning("worker replaced", extra={"fields": {"pid": worker.pid, "reason": worker.killed_for or reason}})
-        if self._closed:
-            return  # close() reaps every worker itself; a second join from another thread would race it
         try:
             self._threads.submit(worker.process.join, 5.0)
         except RuntimeError:
