@@ -42,6 +42,7 @@ from typing import Any
 
 import numpy as np
 import orjson
+from fastapi import Request
 
 from service.models import SmoothRequest
 
@@ -166,7 +167,7 @@ def raw_app(body_file: str) -> Any:
 def threaded_app() -> Any:
     """The service's handlers run in a thread pool inside the HTTP process (the design not taken)."""
     import anyio
-    from fastapi import FastAPI, Request
+    from fastapi import FastAPI
     from fastapi.responses import Response
 
     from service.handlers import JobContext, run_job
@@ -396,7 +397,9 @@ async def _healthz_latencies(port: int, heavy: bytes, seconds: float) -> list[fl
 
     async def load() -> None:
         while time.perf_counter() < stop:
-            await _one("127.0.0.1", port, heavy)
+            status, body = await _one("127.0.0.1", port, heavy)
+            if status != 200:  # a heavy request that fails fast would load nothing
+                raise RuntimeError(f"heavy request: status {status}: {body[:200]!r}")
 
     async def probe() -> None:
         await asyncio.sleep(0.3)  # let the heavy requests arrive first
