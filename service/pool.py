@@ -35,9 +35,11 @@ import os
 import pickle
 import socket
 import struct
+import sys
 import threading
 import time
 from concurrent.futures import ThreadPoolExecutor
+from pathlib import Path
 from typing import Any, Callable
 
 from .jobs import Job, Outcome
@@ -141,6 +143,26 @@ class _Worker:
         self.writer.close()
 
 
+def _same_packages_in_forkserver() -> None:
+    """Make the forkserver import this ``service`` and ``estimators``, not namesakes in the current directory.
+
+    The forkserver is started as ``python -c ...``, which puts the current
+    directory first on its ``sys.path``, and Python 3.11's forkserver does not
+    adopt the parent's path; started from a project with a ``service/``
+    directory, the workers would import that one and never become ready.
+    ``PYTHONSAFEPATH`` (Python 3.11) drops that entry; the directory holding
+    these packages goes on ``PYTHONPATH`` unless the parent finds them on a
+    path entry other than its first (its script's or the current directory).
+    Read when the forkserver starts, inherited by every worker.
+    """
+    os.environ.setdefault("PYTHONSAFEPATH", "1")
+    root = str(Path(__file__).resolve().parents[1])
+    current = os.environ.get("PYTHONPATH", "")
+    found = {str(Path(p).resolve()) for p in [*sys.path[1:], *current.split(os.pathsep)] if p}
+    if root not in found:
+        os.environ["PYTHONPATH"] = root + os.pathsep + current if current else root
+
+
 def _context() -> multiprocessing.context.BaseContext:
     try:
         ctx = multiprocessing.get_context("forkserver")
@@ -192,6 +214,7 @@ class WorkerPool:
             # Parallelism comes from the worker count; one BLAS thread per worker avoids
             # oversubscribing the cores.  Read when the forkserver starts, inherited by every worker.
             os.environ.setdefault(name, "1")
+        _same_packages_in_forkserver()
         for _ in range(self.size):
             self._spawn_later()
 

@@ -45,14 +45,14 @@ def bandwise_executable() -> str:
 class Server:
     """One service process; reads its announced address from stdout."""
 
-    def __init__(self, argv: list[str], env: dict[str, str] | None = None) -> None:
+    def __init__(self, argv: list[str], env: dict[str, str] | None = None, cwd: Path = REPO) -> None:
         self.started = time.perf_counter()
         self.process = subprocess.Popen(
             argv,
             stdout=subprocess.PIPE,
             stderr=subprocess.PIPE,
             env={**os.environ, **(env or {})},
-            cwd=REPO,
+            cwd=cwd,
             start_new_session=True,
         )
         self.stdout_lines: list[str] = []
@@ -190,6 +190,21 @@ def test_python_dash_m_service_runs_too() -> None:
         assert r.status_code == 200
     finally:
         assert s.terminate() == 0
+
+
+def test_packages_named_like_ours_in_the_start_directory_do_not_reach_the_workers(tmp_path: Path) -> None:
+    # `service` is a common directory name: started from a project that has one, the workers
+    # must still import Bandwise's packages, as the HTTP process does.
+    for name in ("service", "estimators"):
+        (tmp_path / name).mkdir()
+        (tmp_path / name / "__init__.py").write_text("")
+    s = Server([bandwise_executable(), "serve", "--host", "127.0.0.1", "--port", "0", "--workers", "1"], cwd=tmp_path)
+    try:
+        s.wait_ok("/readyz", timeout=30.0)
+        r = httpx.post(s.base + "/v1/smooth", json={"x": [1, 2, 3, 4], "y": [1, 2, 1, 2], "bandwidth": 1.0}, timeout=30)
+        assert r.status_code == 200, r.text[:300]
+    finally:
+        assert s.terminate() == 0, s.stderr_lines[-20:]
 
 
 def test_sigterm_drains_then_exits_zero() -> None:
