@@ -557,11 +557,47 @@ def gauss_tile_moments(v, starts, q, fact, moments):  # pragma: no cover - compi
 
 
 @njit(cache=True, nogil=True, inline="always", fastmath=_FAST)
-def _translate_tile(tt, tiles, moments, translations, reach, first, row):  # pragma: no cover - compiled
+def _translate_one(amat, moments, s, row):  # pragma: no cover - compiled
+    """``row[c, k] += sum_j A[k, j] moments[s, c, j]`` for one source tile."""
+    ncol, nterms = moments.shape[1], moments.shape[2]
+    for c in range(ncol):
+        for k in range(nterms):
+            acc = 0.0
+            for j in range(nterms - k):
+                acc += amat[k, j] * moments[s, c, j]
+            row[c, k] += acc
+
+
+@njit(cache=True, nogil=True, inline="always", fastmath=_FAST)
+def _translate_pair(amat, moments, right, left, row, pair):  # pragma: no cover - compiled
+    """Both source tiles at offsets ``+D`` (``right``) and ``-D`` (``left``) with the one matrix ``A_D``.
+
+    The kernel is even, so ``A_{-D}[k, j] = (-1)^(j+k) A_D[k, j]``: the pair
+    contributes ``sum_j A_D[k, j] (M_right[j] + (-1)^(j+k) M_left[j])``, one
+    product per order ``k`` instead of two.  ``pair`` is scratch of shape ``(2, N)``.
+    """
+    ncol, nterms = moments.shape[1], moments.shape[2]
+    for c in range(ncol):
+        for j in range(nterms):
+            mirrored = moments[left, c, j] if j % 2 == 0 else -moments[left, c, j]
+            pair[0, j] = moments[right, c, j] + mirrored  # even k
+            pair[1, j] = moments[right, c, j] - mirrored  # odd k
+        for k in range(nterms):
+            src = pair[k % 2]
+            acc = 0.0
+            for j in range(nterms - k):
+                acc += amat[k, j] * src[j]
+            row[c, k] += acc
+
+
+@njit(cache=True, nogil=True, inline="always", fastmath=_FAST)
+def _translate_tile(tt, tiles, moments, translations, reach, first, row, pair):  # pragma: no cover - compiled
     """``row[c, k] = sum_D sum_j A_D[k, j] moments[S, c, j]`` over source tiles within ``reach`` of ``tt``.
 
-    ``first`` is where the search for the first source tile in reach starts
-    (target tiles visited in ascending order only move it forward); returns its new value.
+    Source tiles at opposite offsets ``+D`` and ``-D`` share one matrix
+    (:func:`_translate_pair`).  ``first`` is where the search for the first
+    source tile in reach starts (target tiles visited in ascending order only
+    move it forward); returns its new value.
     """
     ns = tiles.size
     ncol, nterms = moments.shape[1], moments.shape[2]
@@ -570,16 +606,22 @@ def _translate_tile(tt, tiles, moments, translations, reach, first, row):  # pra
             row[c, k] = 0.0
     while first < ns and tiles[first] < tt - reach:
         first += 1
-    s = first
-    while s < ns and tiles[s] <= tt + reach:
-        amat = translations[int(tiles[s] - tt) + reach]
-        for c in range(ncol):
-            for k in range(nterms):
-                acc = 0.0
-                for j in range(nterms - k):
-                    acc += amat[k, j] * moments[s, c, j]
-                row[c, k] += acc
-        s += 1
+    last = first
+    while last < ns and tiles[last] <= tt + reach:
+        last += 1
+    lo, hi = first, last - 1
+    while lo <= hi:  # from the farthest tiles inwards, pairing equal distances
+        left, right = int(tiles[lo] - tt), int(tiles[hi] - tt)
+        if lo < hi and left == -right:
+            _translate_pair(translations[right + reach], moments, hi, lo, row, pair)
+            lo += 1
+            hi -= 1
+        elif -left > right:
+            _translate_one(translations[left + reach], moments, lo, row)
+            lo += 1
+        else:
+            _translate_one(translations[right + reach], moments, hi, row)
+            hi -= 1
     return first
 
 
@@ -590,9 +632,10 @@ def gauss_translate(tiles, moments, target_tiles, translations, reach, local):  
     Sums over the source tiles ``S`` within ``reach`` tiles of each target tile
     (both sorted); ``translations[D + reach]`` is ``A_D`` (zero where ``j + k >= N``).
     """
+    pair = np.empty((2, moments.shape[2]))
     first = 0
     for ti in range(target_tiles.size):
-        first = _translate_tile(target_tiles[ti], tiles, moments, translations, reach, first, local[ti])
+        first = _translate_tile(target_tiles[ti], tiles, moments, translations, reach, first, local[ti], pair)
 
 
 _LANES = 8  # points evaluated together, one vector lane each
@@ -690,6 +733,7 @@ def gauss_transform(points, origin, h, tile_lo, tiles, moments, translations, re
     coef = np.zeros((ncol * nk, nterms))
     pw = np.empty((nterms, _LANES))
     acc = np.empty(_LANES)
+    pair = np.empty((2, nterms))
     m = points.size
     w = np.empty(m)
     first = 0
@@ -708,7 +752,7 @@ def gauss_transform(points, origin, h, tile_lo, tiles, moments, translations, re
         if rel >= 0.0 and rel < span:
             t = int(rel)
             if not filled[t]:
-                first = _translate_tile(tile, tiles, moments, translations, reach, first, local[t])
+                first = _translate_tile(tile, tiles, moments, translations, reach, first, local[t], pair)
                 filled[t] = True
             _evaluate_run(local[t], ratio, conv, w, i0, i1, coef, pw, acc, out)
         else:

@@ -260,6 +260,40 @@ def test_gauss_transform_matches_the_direct_hermite_sum_in_any_point_order(cache
     assert np.max(np.abs(again - ours[np.argsort(points, kind="stable")]) / scale) <= 1e-12
 
 
+def test_gauss_transform_with_empty_tiles_on_either_side_matches_the_direct_sum() -> None:
+    # Tiles at opposite offsets share one translation matrix (the kernel is even); with data in
+    # clusters, a target tile has sources on one side only, on both at some distances, or none
+    # in its own tile, so every way of pairing them is exercised. Reference: the direct Hermite
+    # sum (Abramowitz & Stegun 1964, 22.7.14), as above.
+    from estimators import sums
+
+    rng = np.random.default_rng(12)
+    x = np.sort(np.concatenate([rng.uniform(0.0, 0.6, 40), rng.uniform(1.9, 2.1, 25), rng.uniform(3.3, 3.4, 5), rng.uniform(5.0, 6.5, 60)]))
+    q = np.column_stack([rng.uniform(0.5, 1.5, x.size), rng.normal(size=x.size)])
+    h = 0.3
+    sources = sums._GaussSources(x, q, h)
+    points = np.linspace(-1.0, 7.5, 400)
+    ours = sources.transform(points, np.eye(3))
+    u = (x[None, :] - points[:, None]) / h
+    base = np.exp(-0.5 * u * u) * (np.abs(u) <= sums.GAUSSIAN_CUTOFF + 2.0)
+    reference = np.stack([(hermite * base) @ q for hermite in (np.ones_like(u), u, u * u - 1.0)], axis=-1)
+    scale = np.abs(q).sum(axis=0)[None, :, None]
+    assert np.max(np.abs(ours - reference) / scale) <= 1e-12
+
+
+def test_gaussian_translation_matrices_mirror_for_opposite_offsets() -> None:
+    # The transform applies A_D to the source tiles at +D and -D at once, relying on
+    # A_{-D}[k, j] = (-1)^(j+k) A_D[k, j], which holds because exp(-(D+s)^2/2) = exp(-(-D-s)^2/2).
+    from estimators import sums
+
+    table = sums._translation_matrices(sums.N_TERMS)
+    reach = (table.shape[0] - 1) // 2
+    signs = (-1.0) ** np.add.outer(np.arange(sums.N_TERMS), np.arange(sums.N_TERMS))
+    for d in range(1, reach + 1):
+        plus, minus = table[reach + d], table[reach - d]
+        assert np.max(np.abs(minus - signs * plus)) <= 1e-14 * np.max(np.abs(plus))
+
+
 @pytest.mark.parametrize("offset", range(0, 12))
 def test_gaussian_translation_polynomial_matches_the_kernel_and_its_derivatives(offset: int) -> None:
     # Closed form: d^j/ds^j exp(-(D+s)^2/2) = (-1)^j He_j(D+s) exp(-(D+s)^2/2), probabilists' Hermite
