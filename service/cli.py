@@ -9,6 +9,8 @@ status 0.  A second Ctrl+C stops at once.
 from __future__ import annotations
 
 import argparse
+import logging
+import os
 import signal
 import socket
 import sys
@@ -17,6 +19,8 @@ from types import FrameType
 from typing import Any
 
 from . import __version__
+
+log = logging.getLogger("bandwise.cli")
 
 
 def _parser() -> argparse.ArgumentParser:
@@ -63,16 +67,29 @@ def _url(host: str, port: int) -> str:
 def serve(overrides: dict[str, Any]) -> int:
     """Run the service until it is told to stop; return the exit status."""
     import uvicorn
+    from pydantic import ValidationError
 
     from .app import create_app
     from .logs import configure_logging, uvicorn_log_config
-    from .settings import Settings
+    from .settings import Settings, describe_errors, unknown_variables
 
-    settings = Settings(**{k: v for k, v in overrides.items() if v is not None})
+    try:
+        settings = Settings(**{k: v for k, v in overrides.items() if v is not None})
+    except ValidationError as exc:
+        for line in describe_errors(exc):
+            print(f"bandwise: {line}", file=sys.stderr)
+        return 2
     configure_logging(settings.log_level)
+    for name, close in unknown_variables(os.environ):
+        hint = f"; did you mean {close}?" if close else ""
+        log.warning(f"{name} is not a Bandwise setting and is ignored{hint}", extra={"fields": {"variable": name, "did_you_mean": close}})
+    try:
+        sock = _bind(settings.host, settings.port)
+    except OSError as exc:
+        print(f"bandwise: cannot listen on {settings.host}:{settings.port}: {exc.strerror or exc}", file=sys.stderr)
+        return 1
     app = create_app(settings)
     service = app.state.service
-    sock = _bind(settings.host, settings.port)
     port = sock.getsockname()[1]
     config = uvicorn.Config(
         app,

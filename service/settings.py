@@ -6,15 +6,25 @@ one place documents them (the README's settings table mirrors this class).
 
 from __future__ import annotations
 
+import difflib
 import os
 import re
+from collections.abc import Mapping
 from typing import Annotated, Any
 
-from pydantic import Field, field_validator
+from pydantic import Field, ValidationError, field_validator
 from pydantic_settings import BaseSettings, NoDecode, SettingsConfigDict
 
 _SHA256_HEX = re.compile(r"^[0-9a-f]{64}$")
 MIB = 1024 * 1024
+PREFIX = "BANDWISE_"
+#: variables with the prefix that belong to Bandwise's other parts (the Python client, the
+#: gateway's configuration), not to the service's settings
+COMPANION_VARIABLES = frozenset({"BANDWISE_URL", "BANDWISE_API_KEY", "BANDWISE_GATEWAY_LISTEN", "BANDWISE_GATEWAY_PORT", "BANDWISE_REPLICA"})
+#: settings that ``bandwise serve`` also takes as flags
+_FLAGS = {"host": "--host", "port": "--port", "workers": "--workers", "log_level": "--log-level"}
+#: settings whose values are not repeated in error messages
+_SECRET = frozenset({"api_keys"})
 
 
 def _default_workers() -> int:
@@ -117,3 +127,36 @@ class Settings(BaseSettings):
             "max_candidates": self.max_candidates,
             "default_curve_points": self.default_curve_points,
         }
+
+
+def unknown_variables(environ: Mapping[str, str]) -> list[tuple[str, str | None]]:
+    """``BANDWISE_*`` variables that name no setting, each with the closest setting's name (or None).
+
+    Settings ignore them, so a misspelt variable would silently leave the default
+    in force; the service logs a warning for each at start.  The client's and
+    the gateway's variables (:data:`COMPANION_VARIABLES`) are not reported.
+    """
+    fields = sorted(name.upper() for name in Settings.model_fields)
+    out: list[tuple[str, str | None]] = []
+    for name in sorted(environ):
+        upper = name.upper()
+        if upper.startswith(PREFIX) and upper.removeprefix(PREFIX) not in fields and upper not in COMPANION_VARIABLES:
+            close = difflib.get_close_matches(upper.removeprefix(PREFIX), fields, n=1, cutoff=0.75)  # the shared prefix would make every name look close
+            out.append((name, PREFIX + close[0] if close else None))
+    return out
+
+
+def describe_errors(exc: ValidationError) -> list[str]:
+    """One line per refused setting: its name, where it is set and why it was refused.
+
+    The value is repeated except for API keys (an operator who put a key itself
+    there, not its digest, should not find it in the logs).
+    """
+    lines = []
+    for error in exc.errors():
+        field = str(error["loc"][0]) if error["loc"] else "settings"
+        where = " or ".join(([_FLAGS[field]] if field in _FLAGS else []) + [PREFIX + field.upper()])
+        shown = "" if field in _SECRET or "input" not in error else f" = {error['input']!r}"
+        message = str(error["msg"]).removeprefix("Value error, ")
+        lines.append(f"invalid setting {field}{shown} ({where}): {message}")
+    return lines

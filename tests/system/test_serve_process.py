@@ -207,6 +207,27 @@ def test_packages_named_like_ours_in_the_start_directory_do_not_reach_the_worker
         assert s.terminate() == 0, s.stderr_lines[-20:]
 
 
+def test_a_port_in_use_is_one_line_and_exit_status_1() -> None:
+    with socket.socket(socket.AF_INET, socket.SOCK_STREAM) as busy:
+        busy.bind(("127.0.0.1", 0))
+        busy.listen(1)
+        port = busy.getsockname()[1]
+        done = subprocess.run([bandwise_executable(), "serve", "--host", "127.0.0.1", "--port", str(port)], capture_output=True, text=True, timeout=60, cwd=REPO)
+    assert done.returncode == 1
+    assert f"bandwise: cannot listen on 127.0.0.1:{port}:" in done.stderr
+    assert "Traceback" not in done.stderr
+
+
+def test_a_misspelt_variable_is_logged_with_the_setting_it_resembles() -> None:
+    s = Server([bandwise_executable(), "serve", "--host", "127.0.0.1", "--port", "0", "--workers", "1"], env={"BANDWISE_WORKRS": "3"})
+    try:
+        s.wait_ok("/healthz")
+        warnings = [orjson.loads(line) for line in s.stderr_lines if "BANDWISE_WORKRS" in line]
+        assert [(w["level"], w["variable"], w["did_you_mean"]) for w in warnings] == [("warning", "BANDWISE_WORKRS", "BANDWISE_WORKERS")]
+    finally:
+        assert s.terminate() == 0
+
+
 def test_sigterm_drains_then_exits_zero() -> None:
     s = Server(
         [bandwise_executable(), "serve", "--host", "127.0.0.1", "--port", "0", "--workers", "1"],
