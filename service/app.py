@@ -21,6 +21,7 @@ from . import __version__
 from .core import Service
 from .docs_text import API_DESCRIPTION
 from .errors import PROBLEM_MEDIA_TYPE, ProblemError, field_errors, problem_document
+from .head import HeadAsGetMiddleware
 from .hot_routes import HOT_KINDS, HotRoutesMiddleware
 from .logs import flush_access_log
 from .observability import ObservabilityMiddleware, request_id_of
@@ -136,7 +137,8 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     hot = {r.path: r for router in routers for r in router.routes if isinstance(r, APIRoute) and r.path in HOT_KINDS and "POST" in r.methods}
     if set(hot) != set(HOT_KINDS):  # the direct path must not answer for a route that does not exist
         raise RuntimeError(f"numerical POST routes not registered: {sorted(set(HOT_KINDS) - set(hot))}")
-    app.add_middleware(HotRoutesMiddleware, service=service, routes=hot, on_problem=_on_problem)  # innermost: inside CORS and logging
+    app.add_middleware(HeadAsGetMiddleware)  # innermost: HEAD is logged and counted as HEAD
+    app.add_middleware(HotRoutesMiddleware, service=service, routes=hot, on_problem=_on_problem)  # inside CORS and logging
     if settings.cors_origins:
         app.add_middleware(
             ProblemCORSMiddleware,
