@@ -31,7 +31,12 @@ def check_json_content_type(request: Request) -> None:
             raise ProblemError("unsupported-media-type", "JSON bodies must be UTF-8.")
     encoding = request.headers.get("content-encoding", "identity").strip().lower()
     if encoding not in ("", "identity"):
-        raise ProblemError("unsupported-media-type", f"Content-Encoding {encoding!r} is not supported for request bodies; send them uncompressed.")
+        # RFC 9110, 15.5.16: name the content codings that would have been accepted (only none)
+        raise ProblemError(
+            "unsupported-media-type",
+            f"Content-Encoding {encoding!r} is not supported for request bodies; send them uncompressed.",
+            headers={"Accept-Encoding": "identity"},
+        )
 
 
 async def read_body(request: Request, limit: int) -> bytes:

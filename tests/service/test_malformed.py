@@ -121,3 +121,12 @@ def test_malformed_request(api: Harness, method: str, path: str, kwargs: dict[st
     assert api.get("/healthz").status_code == 200
     good = api.post("/v1/smooth", json=GOOD)
     assert good.status_code == 200, good.text
+
+
+@pytest.mark.parametrize("path", ["/v1/smooth", "/v1/smooth/batch", "/v1/bandwidth"])
+def test_a_compressed_body_is_refused_naming_the_codings_accepted(api: Harness, path: str) -> None:
+    # RFC 9110, 15.5.16: a 415 caused by the content coding ought to say in Accept-Encoding
+    # which codings would have been accepted; here only the identity.
+    response = api.post(path, content=b"\x1f\x8b\x08\x00", headers={"content-type": "application/json", "content-encoding": "gzip"})
+    problem_ok(response, 415)
+    assert response.headers["accept-encoding"] == "identity"
