@@ -38,6 +38,8 @@ __all__ = ["Smoother", "fit", "validate_sample", "SortedSample", "ENGINES"]
 ENGINES = ("auto", "exact", "binned")
 _SINGULAR = 1e-11  # relative determinant below which a local fit drops one degree
 _BINNED_MIN_N = 20000
+#: residual degrees of freedom per point at or below which the noise scale is not estimable (see ``residual_scale``)
+_INTERPOLATING_DOF = 1e-9
 _BLOCK = 65536  # query points per block: bounds the memory of the moment arrays
 
 
@@ -418,13 +420,17 @@ class Smoother:
 
         ``sigma^2 = sum_i w_i r_i^2 / (n - 2 tr(L) + tr(L^T W L W^{-1}))`` over
         points with positive weight (Hastie & Tibshirani 1990, Section 3.4;
-        weights act as precisions, ``Var(e_i) = sigma^2 / w_i``).
+        weights act as precisions, ``Var(e_i) = sigma^2 / w_i``).  NaN when the
+        residual degrees of freedom are not above ``1e-9 n``: the fit then
+        interpolates the data (the exact value is 0, what is left is the rounding
+        of the two trace terms), and the residuals say nothing about the noise.
         """
         r = self.residuals()
         ok = (self.sample.w > 0) & np.isfinite(r)
         rss = float(np.sum(self.sample.w[ok] * r[ok] ** 2))
-        dof = float(np.count_nonzero(ok)) - 2.0 * self.effective_df + self.variance_df
-        if dof <= 0:
+        used = float(np.count_nonzero(ok))
+        dof = used - 2.0 * self.effective_df + self.variance_df
+        if dof <= _INTERPOLATING_DOF * used:
             return float("nan")
         return math.sqrt(rss / dof)
 

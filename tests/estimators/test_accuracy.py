@@ -215,6 +215,20 @@ def test_degrees_of_freedom_and_residual_scale_match_the_dense_smoother_matrix(k
     assert s.residual_scale == pytest.approx(sigma, rel=1e-9)
 
 
+@pytest.mark.parametrize("kernel", ["epanechnikov", "gaussian"])
+@pytest.mark.parametrize("weights", [None, [0.0, 0.0, 1.0, 0.0, 2.0]], ids=["two points", "two weighted of five"])
+def test_an_interpolating_fit_leaves_the_residual_scale_undefined(kernel: str, weights: list[float] | None) -> None:
+    # A local linear fit through two distinct points is the line through them: L = I, so
+    # n - 2 tr L + tr(L' W L W^-1) = 2 - 4 + 2 = 0 residual degrees of freedom (Hastie &
+    # Tibshirani 1990, Section 3.4) and the noise scale cannot be estimated; rounding of the
+    # trace terms must not turn 0 / 0 into a number.
+    x = np.array([1.0, 2.0]) if weights is None else np.array([1.0, 2.0, 3.0, 4.0, 5.0])
+    y = np.array([1.0, 2.0]) if weights is None else np.array([1.0, 2.0, 1.0, 2.0, 1.5])
+    s = fit(x, y, kernel=kernel, bandwidth=3.0, degree=1, weights=weights)
+    assert s.effective_df == pytest.approx(2.0, abs=1e-9)
+    assert np.isnan(s.residual_scale)
+
+
 @pytest.mark.parametrize("degree", [0, 1, 2])
 @pytest.mark.parametrize(("seed", "span", "h"), [(11, 10.0, 1.2), (3, 10.0, 0.4), (5, 50.0, 2.0)])
 def test_gaussian_variance_term_with_the_shorter_data_point_transform_stays_near_rounding(seed: int, span: float, h: float, degree: int) -> None:
