@@ -532,6 +532,30 @@ def gather_sorted(x, y, order, xs, ys, distinct_prefix):  # pragma: no cover - c
 
 
 @njit(cache=True, nogil=True, error_model="numpy", fastmath=_FAST)
+def gauss_direct(x, q, points, lo, hi, h, sums):  # pragma: no cover - compiled
+    """``sums[i, c, j] = sum_{lo_i <= s < hi_i} q[s, c] He_j(u) exp(-u^2/2)``, ``u = (x_s - p_i) / h``.
+
+    The Hermite functions by their recurrence (``He_{j+1} = u He_j - j He_{j-1}``),
+    each source's term in full precision: for points far from all data, where
+    the fast Gauss transform's absolute error is not small against the sums.
+    """
+    ncol, nj = sums.shape[1], sums.shape[2]
+    for i in range(points.size):
+        for c in range(ncol):
+            for j in range(nj):
+                sums[i, c, j] = 0.0
+        for s in range(lo[i], hi[i]):
+            u = (x[s] - points[i]) / h
+            base = math.exp(-0.5 * u * u)
+            prev = 0.0
+            he = 1.0
+            for j in range(nj):
+                for c in range(ncol):
+                    sums[i, c, j] += q[s, c] * he * base
+                prev, he = he, u * he - j * prev
+
+
+@njit(cache=True, nogil=True, error_model="numpy", fastmath=_FAST)
 def gauss_tile_moments(v, starts, q, fact, moments):  # pragma: no cover - compiled
     """Fast Gauss transform sources: ``moments[s, c, j] = sum_{i in tile s} q[i, c] v_i^j / j!``.
 

@@ -409,7 +409,7 @@ class Smoother:
         points = self._data_sorted
         plan = MomentPlan(
             self.sample.xs, self.sample.ws, self.kernel_spec, self.bandwidth, 2 * p, power=2,
-            engine=self._engine_for(points.size), gauss_terms=DATA_POINT_TERMS.get(p, N_TERMS),
+            engine=self._engine_for(points.size), gauss_terms=DATA_POINT_TERMS.get(p, N_TERMS), data_points=True,
         )
         q2 = plan.sums(points)[:, 0, :]
         return _compiled.hankel_quadratic_sum(sol.inv[:, 0, :], q2, self.sample.w[self.sample.order])

@@ -48,7 +48,13 @@ Gaussian kernel (``engine="exact"``)
     the dense formula. Sources farther than ``GAUSSIAN_CUTOFF = 10`` bandwidths
     from a target tile are ignored (their relative weight is below
     ``exp(-50) ~ 2e-22``); a point with no data within that distance is
-    undefined (NaN), like an empty window of a compact kernel.
+    undefined (NaN), like an empty window of a compact kernel. The transform's
+    error is absolute (a fraction of the mass in reach), so at a point farther
+    than ``_DIRECT_BEYOND = 6`` bandwidths from every data point, where all
+    weights are below ``exp(-18)``, the sums are taken term by term instead
+    (only beyond the ends of the data or inside a wide gap; cost per such
+    point: the sources in reach). The squared kernel's sums run on tiles of
+    ``h / sqrt 2`` with 16 tiles of reach (ten bandwidths, plus one tile).
 
     Sums needed only at the data points (the squared kernel's sums behind the
     variance term of the residual scale) use fewer terms, by local degree
@@ -349,6 +355,23 @@ _LOCAL_CACHE_TILES = 16384
 _REACH = int(math.ceil(GAUSSIAN_CUTOFF)) + 1
 
 
+#: points whose nearest source is farther than this many bandwidths get their gaussian sums term by
+#: term: the transform's absolute error (below 1e-18 of the mass in reach) is then no longer small
+#: against sums of exp(-u^2/2) < 1.5e-8 of that mass (3e-11 relative at the threshold)
+_DIRECT_BEYOND = 6.0
+
+
+def _reach_in_tiles(power: int) -> int:
+    """Tiles of ``h / sqrt(power)`` that span ``GAUSSIAN_CUTOFF`` bandwidths ``h``, plus one.
+
+    The squared kernel's sums run on tiles ``sqrt 2`` times narrower; with the
+    same count of tiles they would stop at 7.8 bandwidths, so a point 8-10
+    bandwidths from all data (a gap, or far outside the data) would get a
+    variance of 0 while its estimate is defined.
+    """
+    return int(math.ceil(GAUSSIAN_CUTOFF * math.sqrt(power))) + 1
+
+
 class _GaussSources:
     """Source side of the fast Gauss transform: tile moments ``M[S, c, j] = sum q v^j / j!``.
 
@@ -361,25 +384,29 @@ class _GaussSources:
     a sorted cache of tiles is merged in Python.
     """
 
-    def __init__(self, x: np.ndarray, q: np.ndarray, bandwidth: float, terms: int = N_TERMS) -> None:
+    def __init__(self, x: np.ndarray, q: np.ndarray, bandwidth: float, terms: int = N_TERMS, reach: int = _REACH) -> None:
         n, ncol = q.shape
         self.h = float(bandwidth)
         self.terms = terms
-        self.translations = _translation_matrices(terms)
+        self.reach = reach
+        self.x, self.q = x, np.ascontiguousarray(q, dtype=float)
+        self.translations = _translation_matrices(terms, reach)
         self.ncol = ncol
         self.origin = float(x[0])
         src_tile = np.floor((x - self.origin) / self.h)
         v = (x - self.origin) / self.h - (src_tile + 0.5)
         self.tiles, starts = _sorted_groups(src_tile)
+        # data gaps wide enough to hold a point beyond _DIRECT_BEYOND bandwidths from both sides
+        self._wide_gaps = bool(self.tiles.size > 1 and np.any(np.diff(self.tiles) > 2.0 * _DIRECT_BEYOND))
         self.moments = np.empty((self.tiles.size, ncol, terms))
         _compiled.gauss_tile_moments(np.ascontiguousarray(v), starts, np.ascontiguousarray(q, dtype=float), _FACTORIALS, self.moments)
         self._cached_tiles = np.empty(0)
         self._cached_local = np.empty((0, ncol, terms))
         # Every tile with a source in reach fits the cache: keep it as one dense array indexed by tile.
-        span = int(self.tiles[-1] - self.tiles[0]) + 1 + 2 * _REACH if self.tiles.size else 0
+        span = int(self.tiles[-1] - self.tiles[0]) + 1 + 2 * reach if self.tiles.size else 0
         self._dense = 0 < span <= _LOCAL_CACHE_TILES
         if self._dense:
-            self._tile_lo = float(self.tiles[0] - _REACH)
+            self._tile_lo = float(self.tiles[0] - reach)
             self._dense_local = np.empty((span, ncol, terms))
             self._filled = np.zeros(span, dtype=np.bool_)
 
@@ -392,7 +419,7 @@ class _GaussSources:
             return self._cached_local[pos]
         missing = ttiles[~hit]
         fresh = np.empty((missing.size, self.ncol, self.terms))
-        _compiled.gauss_translate(self.tiles, self.moments, missing, self.translations, _REACH, fresh)
+        _compiled.gauss_translate(self.tiles, self.moments, missing, self.translations, self.reach, fresh)
         if known.size + missing.size <= _LOCAL_CACHE_TILES:
             merged = np.concatenate([known, missing])
             order = np.argsort(merged, kind="stable")
@@ -423,9 +450,10 @@ class _GaussSources:
         out = np.empty((m, self.ncol, nk))
         if self._dense:
             _compiled.gauss_transform(
-                np.ascontiguousarray(points, dtype=float), self.origin, self.h, self._tile_lo, self.tiles, self.moments, self.translations, _REACH,
+                np.ascontiguousarray(points, dtype=float), self.origin, self.h, self._tile_lo, self.tiles, self.moments, self.translations, self.reach,
                 _FACTORIALS, conv, self._dense_local, self._filled, out,
             )
+            self._far_points_directly(points, conv, out)
             return out
         tgt_tile_all = np.floor((points - self.origin) / self.h)
         w_all = (points - self.origin) / self.h - (tgt_tile_all + 0.5)
@@ -433,7 +461,32 @@ class _GaussSources:
         which = np.repeat(np.arange(ttiles.size, dtype=np.int64), np.diff(np.append(starts, m)))
         local = self._local(ttiles)
         _compiled.gauss_evaluate(local, which, np.ascontiguousarray(w_all), _FACTORIALS, conv, out)
+        self._far_points_directly(points, conv, out)
         return out
+
+    def _far_points_directly(self, points: np.ndarray, conv: np.ndarray, out: np.ndarray) -> None:
+        """Replace the transform's sums by term-by-term sums at ascending points far from all data.
+
+        Such points lie beyond the ends of the data or inside a wide gap, so the
+        check costs nothing for points among the data.
+        """
+        near = _DIRECT_BEYOND * self.h
+        if not (self._wide_gaps or points[0] < self.x[0] - near or points[-1] > self.x[-1] + near):
+            return
+        idx = np.searchsorted(self.x, points)
+        left = points - self.x[np.maximum(idx - 1, 0)]
+        right = self.x[np.minimum(idx, self.x.size - 1)] - points
+        gap = np.minimum(np.where(idx > 0, left, np.inf), np.where(idx < self.x.size, right, np.inf))
+        far = np.flatnonzero(gap > near)
+        if far.size == 0:
+            return
+        pts = np.ascontiguousarray(points[far], dtype=float)
+        radius = (self.reach + 1) * self.h  # every source the transform could have counted
+        lo = np.searchsorted(self.x, pts - radius, side="left")
+        hi = np.searchsorted(self.x, pts + radius, side="right")
+        sums = np.empty((far.size, self.ncol, conv.shape[0]))
+        _compiled.gauss_direct(self.x, self.q, pts, lo, hi, self.h, sums)
+        out[far] = np.einsum("mcj,jk->mck", sums, conv)
 
 
 def economized_kernel(offset: float, terms: int = N_TERMS) -> np.ndarray:
@@ -454,7 +507,7 @@ def economized_kernel(offset: float, terms: int = N_TERMS) -> np.ndarray:
 
 
 @lru_cache(maxsize=None)
-def _translation_matrices(terms: int = N_TERMS) -> np.ndarray:
+def _translation_matrices(terms: int = N_TERMS, reach: int = _REACH) -> np.ndarray:
     """``A[k, j] = (-1)^k (j+k)! a_{j+k}(D) / k!`` (``j + k < N``) for every tile offset ``D``.
 
     With ``a_n(D)`` from :func:`economized_kernel`, ``exp(-(D + v - w)^2/2) ~
@@ -465,7 +518,6 @@ def _translation_matrices(terms: int = N_TERMS) -> np.ndarray:
     constant table per term count, built once (read-only).
     """
     n = terms
-    reach = _REACH
     jk = np.add.outer(np.arange(n), np.arange(n))
     sign_k = (-1.0) ** np.arange(n)
     out = np.empty((2 * reach + 1, n, n))
@@ -478,6 +530,7 @@ def _translation_matrices(terms: int = N_TERMS) -> np.ndarray:
 
 for _terms in sorted({N_TERMS, *DATA_POINT_TERMS.values()}):
     _translation_matrices(_terms)  # built at import (and in the preloaded worker parent), not on a first request
+_translation_matrices(N_TERMS, _reach_in_tiles(2))  # the squared kernel's sums at arbitrary points
 del _terms
 
 
@@ -496,10 +549,13 @@ def _hermite_to_power(order: int) -> np.ndarray:
 class _GaussianPlan:
     """Moments for the gaussian kernel (or its square) by the fast Gauss transform."""
 
-    def __init__(self, x: np.ndarray, q: np.ndarray, bandwidth: float, order: int, power: int, terms: int = N_TERMS) -> None:
+    def __init__(self, x: np.ndarray, q: np.ndarray, bandwidth: float, order: int, power: int, terms: int = N_TERMS, data_points: bool = False) -> None:
         # K(u)^2 = exp(-u^2) / (2 pi) = f(sqrt2 u) / (2 pi): a gaussian at h / sqrt 2
         self.order = order
-        self.sources = _GaussSources(x, q, bandwidth / math.sqrt(power), terms)
+        # at a data point the sum holds the point's own term, so sources beyond 7.8 bandwidths
+        # (11 tiles of h / sqrt 2) cannot matter there; anywhere else the full cutoff is needed
+        reach = _REACH if data_points else _reach_in_tiles(power)
+        self.sources = _GaussSources(x, q, bandwidth / math.sqrt(power), terms, reach)
         norm = (2.0 * math.pi) ** (-0.5 * power)
         scale = norm * (1.0 / math.sqrt(power)) ** np.arange(order + 1)  # u = u' / sqrt(power)
         # sum q u^k K(u)^power = scale_k sum_j P[k, j] (sum q He_j(u') f(u')): one matrix for the transform
@@ -604,7 +660,9 @@ class MomentPlan:
     meaning of the arguments. ``column_orders`` may lower the order needed for
     some columns (entries above it are then zero and are not to be used).
     ``gauss_terms`` sets the polynomial length of the fast Gauss transform
-    (gaussian kernel, exact engine only; see :data:`DATA_POINT_TERMS`).
+    (gaussian kernel, exact engine only; see :data:`DATA_POINT_TERMS`);
+    ``data_points=True`` promises that the points are data locations, where the
+    squared kernel's sums may stop at 7.8 bandwidths (see :class:`_GaussianPlan`).
     """
 
     def __init__(
@@ -619,6 +677,7 @@ class MomentPlan:
         engine: str = "exact",
         column_orders: Sequence[int] | None = None,
         gauss_terms: int = N_TERMS,
+        data_points: bool = False,
     ) -> None:
         self.x, self.q = x, (q[:, None] if q.ndim == 1 else q)
         self.kernel, self.bandwidth, self.order, self.power = kernel, float(bandwidth), int(order), int(power)
@@ -630,7 +689,7 @@ class MomentPlan:
             raise ValueError(f"unknown engine {engine!r}")
         elif kernel.shape is None:
             if x.size:
-                self._evaluate = _GaussianPlan(x, self.q, bandwidth, order, power, gauss_terms)
+                self._evaluate = _GaussianPlan(x, self.q, bandwidth, order, power, gauss_terms, data_points)
         else:
             self.shape = kernel.shape if power == 1 else kernel.shape.squared()
             self.orders = np.full(self.q.shape[1], order, dtype=np.int64)

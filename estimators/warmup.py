@@ -27,6 +27,8 @@ def warm() -> float:
             s.residual_scale
             s.predict(np.linspace(0, 10, 7))
             s.moments(np.linspace(0, 10, 7), np.ones((x.size, 3)), 4, power=2)
+            if kernel == "gaussian":
+                s.predict(np.array([17.5]))  # far from the data: sums term by term
     grid = np.linspace(0.5, 9.5, 9)
     for kernel in ("gaussian", "epanechnikov"):
         s = fit(x, y, kernel=kernel, bandwidth=1.0)

@@ -326,3 +326,31 @@ def test_gaussian_translation_polynomial_matches_the_kernel_and_its_derivatives(
     for j, bound in ((0, 1e-15), (1, 2e-15), (2, 1e-14)):
         exact = (-1.0) ** j * eval_hermitenorm(j, u) * np.exp(-0.5 * u * u)
         assert np.max(np.abs(P.polyval(s, P.polyder(coef, j)) - exact)) <= bound
+
+
+def _dense_local_linear_weights(x: np.ndarray, t: float, h: float) -> np.ndarray:
+    """``l(t) = e_1' (X'WX)^-1 X'W`` for the gaussian local linear fit at ``t``, weights scaled by their maximum."""
+    d = x - t
+    u = d / h
+    k = np.exp(-0.5 * u * u + 0.5 * np.min(u * u))  # a common factor cancels in l(t)
+    design = np.column_stack([np.ones_like(d), d])
+    return np.linalg.solve(design.T @ (k[:, None] * design), (design * k[:, None]).T)[0]
+
+
+def test_gaussian_fit_and_standard_error_far_from_the_data_match_the_dense_formula() -> None:
+    # Points 6-9.9 bandwidths from the nearest data (inside a gap of 17 bandwidths, and beyond the
+    # data): the estimate is l(t)'y and its standard error sigma |l(t)| (Fan & Gijbels 1996,
+    # Section 3.2; sigma = the smoother's residual scale), with l(t) from the explicit weighted
+    # least-squares solution. The tiny weights there must not leave the sums to rounding.
+    rng = np.random.default_rng(21)
+    x = np.concatenate([rng.uniform(0.0, 10.0, 100), rng.uniform(27.0, 37.0, 100)])
+    y = np.sin(x) + rng.normal(0.0, 0.3, x.size)
+    h = 1.0
+    s = fit(x, y, kernel="gaussian", bandwidth=h)
+    lo, hi = x[x < 20].max(), x[x > 20].min()
+    t = np.array([lo + 6.5, lo + 8.5, (lo + hi) / 2, hi - 7.5, x.max() + 6.0, x.max() + 8.0, x.max() + 9.5])
+    weights = [_dense_local_linear_weights(x, float(p), h) for p in t]
+    estimate = np.array([w @ y for w in weights])
+    se = s.residual_scale * np.array([np.sqrt(w @ w) for w in weights])
+    np.testing.assert_allclose(s.predict(t), estimate, rtol=1e-7)
+    np.testing.assert_allclose(s.standard_error(t), se, rtol=1e-7)
