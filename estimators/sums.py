@@ -396,8 +396,7 @@ class _GaussSources:
         src_tile = np.floor((x - self.origin) / self.h)
         v = (x - self.origin) / self.h - (src_tile + 0.5)
         self.tiles, starts = _sorted_groups(src_tile)
-        # data gaps wide enough to hold a point beyond _DIRECT_BEYOND bandwidths from both sides
-        self._wide_gaps = bool(self.tiles.size > 1 and np.any(np.diff(self.tiles) > 2.0 * _DIRECT_BEYOND))
+        self._wide_gaps: bool | None = None  # found when first needed (see _has_wide_gaps)
         self.moments = np.empty((self.tiles.size, ncol, terms))
         _compiled.gauss_tile_moments(np.ascontiguousarray(v), starts, np.ascontiguousarray(q, dtype=float), _FACTORIALS, self.moments)
         self._cached_tiles = np.empty(0)
@@ -464,6 +463,17 @@ class _GaussSources:
         self._far_points_directly(points, conv, out)
         return out
 
+    def _has_wide_gaps(self) -> bool:
+        """Whether some gap between data holds a point beyond ``_DIRECT_BEYOND`` bandwidths from both sides."""
+        if self._wide_gaps is None:
+            tiles = self.tiles
+            # sources in tiles a < b are less than (b - a + 1) tile widths apart, so such a gap needs
+            # b - a >= 2 _DIRECT_BEYOND, i.e. that many empty tiles less one; fewer in all: no need to look
+            empty = float(tiles[-1] - tiles[0]) + 1.0 - tiles.size if tiles.size else 0.0
+            wide = 2.0 * _DIRECT_BEYOND
+            self._wide_gaps = bool(empty >= wide - 1.0 and np.any(np.diff(tiles) >= wide))
+        return self._wide_gaps
+
     def _far_points_directly(self, points: np.ndarray, conv: np.ndarray, out: np.ndarray) -> None:
         """Replace the transform's sums by term-by-term sums at ascending points far from all data.
 
@@ -471,7 +481,7 @@ class _GaussSources:
         check costs nothing for points among the data.
         """
         near = _DIRECT_BEYOND * self.h
-        if not (self._wide_gaps or points[0] < self.x[0] - near or points[-1] > self.x[-1] + near):
+        if not (points[0] < self.x[0] - near or points[-1] > self.x[-1] + near or self._has_wide_gaps()):
             return
         idx = np.searchsorted(self.x, points)
         left = points - self.x[np.maximum(idx - 1, 0)]
