@@ -204,6 +204,8 @@ _MEMORY = 1 << 21  # float64 elements per working array (16 MiB)
 _POINT_BLOCK = 32
 _EXACT_MAX = 1 << 22  # sources x replicates up to which bootstrap weights are exact
 _VARIANCE_CANDIDATES = 12
+#: ``d_j`` at or below which point ``j`` alone determines its fit and its residual carries no noise information
+_SELF_DETERMINED = 1e-8
 _GAUSS_GRID = 16.0
 _GAUSS_REACH = 7.0  # bandwidths beyond the nearest data point at which gaussian weights are dropped
 _SQRT5 = math.sqrt(5.0)
@@ -423,6 +425,11 @@ class _Residuals:
     ra: np.ndarray  # r_j / sqrt(d_j)
     factor: np.ndarray  # d_j = 1 - 2 L_jj + w_j sum_k L_jk^2 / w_k
 
+    @property
+    def informative(self) -> np.ndarray:
+        """Points whose residual says something about the noise (``d_j`` above rounding)."""
+        return self.factor > _SELF_DETERMINED
+
 
 def _memo(s: "Smoother", key: str, build: Any) -> Any:
     """Compute a data-point quantity once per smoother (a smoother never changes after fitting)."""
@@ -450,7 +457,7 @@ def _build_residuals(s: "Smoother") -> _Residuals:
     cross = _variance(s, sample.xs, a, sample.ws)  # sum_k L_jk^2 / w_k
     factor = 1.0 - 2.0 * lev + sample.ws * cross
     # a point that alone determines its fit (d_j ~ 0) carries no noise information
-    ra = np.where(factor > 1e-8, resid / np.sqrt(np.maximum(factor, 1e-8)), 0.0)
+    ra = np.where(factor > _SELF_DETERMINED, resid / np.sqrt(np.maximum(factor, _SELF_DETERMINED)), 0.0)
     return _Residuals(ra, factor)
 
 
@@ -491,17 +498,22 @@ def _build_noise_scale(s: "Smoother", res: _Residuals) -> _NoiseScale:
     from .local_poly import validate_sample
 
     sample = s.sample
-    z = sample.ws * res.ra**2
+    # points that alone determine their fit have residual 0 whatever the noise: leave them out
+    keep = res.informative
+    if not keep.any():
+        return _NoiseScale("constant", math.nan)
+    xs = sample.xs[keep]
+    z = sample.ws[keep] * res.ra[keep] ** 2
     n = z.size
     mean = float(np.mean(z))
     best_score = n * float(np.sum((z - mean) ** 2)) / (n - 1.0) ** 2 if n > 1 else math.inf
     best: _NoiseScale = _NoiseScale("constant", mean)
-    span = float(sample.xs[-1] - sample.xs[0])
+    span = float(xs[-1] - xs[0])
     lo_h = 2.0 * s.bandwidth
     hi_h = max(span, lo_h)
     if n < 10 or span <= 0 or not math.isfinite(best_score):
         return best
-    vsample = validate_sample(sample.xs, z)
+    vsample = validate_sample(xs, z)
     for hv in np.geomspace(lo_h, hi_h, _VARIANCE_CANDIDATES):
         vs = _Smoother(vsample, s.kernel_spec, 1, float(hv), s.engine_request)
         r = vs.residuals()
@@ -544,7 +556,8 @@ def _se_of(s: "Smoother", t: np.ndarray, degree: int, nu: int, robust: bool) -> 
     fit = _local_fit(s, ts, degree)
     a = _coefficient_row(fit, nu, s.bandwidth)
     if robust:
-        column = s.sample.ws**2 * _residuals(s).ra ** 2
+        res = _residuals(s)
+        column = s.sample.ws**2 * res.ra**2 if res.informative.any() else np.full(s.sample.ws.shape, np.nan)
     else:
         column = s.sample.ws * s.residual_scale**2
     var = _variance(s, ts, np.nan_to_num(a), column)
@@ -1000,8 +1013,17 @@ def _propagate(s: "Smoother", t: np.ndarray, a: np.ndarray, errors: np.ndarray, 
 # ---------------------------------------------------------------------------
 
 
-def _cautions(s: "Smoother", t: np.ndarray, centre: np.ndarray, fit: _LocalFit, simultaneous: bool) -> list[Caution]:
+NOISE_NOT_ESTIMABLE = (
+    "the fit passes through every data point (each point alone determines its local fit), so the residuals "
+    "carry no information about the noise: no band, standard error or prediction interval can be given; "
+    "use a larger bandwidth"
+)
+
+
+def _cautions(s: "Smoother", t: np.ndarray, centre: np.ndarray, fit: _LocalFit, simultaneous: bool, noise_known: bool = True) -> list[Caution]:
     out: list[Caution] = []
+    if not noise_known:
+        out.append(Caution("noise_not_estimable", NOISE_NOT_ESTIMABLE))
     if not simultaneous:
         out.append(
             Caution(
@@ -1114,6 +1136,7 @@ def bands(
     crit = math.nan
     alpha = 1.0 - lev
     res = _residuals(s)
+    ok &= bool(res.informative.any())  # no residual carries noise information: no band anywhere
     # the wild bootstrap's pointwise band needs no noise model; everything else uses the local scale
     noise = None if (method == "wild_bootstrap" and not simultaneous) else _noise_scale(s)
     t_ok, a_ok = ts[ok], a[ok]
@@ -1180,7 +1203,7 @@ def bands(
         bias_corrected=bool(bias_correction),
         centre_degree=degree,
         noise=noise_kind,
-        warnings=_cautions(s, t, centre, fit, simultaneous),
+        warnings=_cautions(s, t, centre, fit, simultaneous, noise_known=bool(res.informative.any())),
     )
 
 

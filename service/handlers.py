@@ -180,17 +180,20 @@ def _smooth_arrays(req: SmoothRequest, x: Any, y: Any, weights: Any, limits: dic
         if px is not None and not bands.simultaneous:
             # Pointwise bands at curve and prediction points from one set of replicates.
             both = s.bands(np.concatenate([cx, px]), **kwargs)
+            band_cautions = both.warnings
             m = cx.size
             curve["lower"], curve["upper"], curve["se"] = (np.ascontiguousarray(a[:m], dtype=float) for a in (both.lower, both.upper, both.se))
             p_lower, p_upper = np.asarray(both.lower[m:]), np.asarray(both.upper[m:])
         else:
             b = s.bands(cx, **kwargs)
+            band_cautions = b.warnings
             curve["lower"], curve["upper"], curve["se"] = (np.ascontiguousarray(a, dtype=float) for a in (b.lower, b.upper, b.se))
             if px is not None:
                 pb = s.bands(px, **kwargs)
                 p_lower, p_upper = np.asarray(pb.lower), np.asarray(pb.upper)
         if px is not None:
             p_ilow, p_ihigh = (np.asarray(a, dtype=float) for a in s.prediction_interval(px, level=bands.level))
+        cautions.extend(c for c in band_cautions if c.code == "noise_not_estimable")
         bootstrap = bands.method != "analytic"
         band_info = {
             "method": bands.method,

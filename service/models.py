@@ -270,7 +270,7 @@ class DiagnosticsOut(_Out):
 class WarningOut(_Out):
     """A caution about the result; `code` is stable, `message` is for a person."""
 
-    code: str = Field(..., description="Stable code, e.g. empty_window, extrapolation, selection_at_grid_edge, flat_selection_score, implausibly_rough, few_points, pointwise_bands.")
+    code: str = Field(..., description="Stable code, e.g. empty_window, extrapolation, selection_at_grid_edge, flat_selection_score, implausibly_rough, few_points, pointwise_bands, noise_not_estimable.")
     message: str
 
 

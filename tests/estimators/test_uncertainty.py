@@ -399,3 +399,44 @@ def test_prediction_interval_contains_the_curve_band_inside_and_outside_the_data
     band = s.bands(t, level=0.95, method="analytic")
     lower, upper = s.prediction_interval(t, level=0.95)
     assert np.all(lower <= band.lower + 1e-12) and np.all(upper >= band.upper - 1e-12)
+
+
+@pytest.mark.parametrize("method", ["analytic", "wild_bootstrap", "residual_bootstrap"])
+def test_a_fit_through_every_point_gives_no_band_and_says_why(method: str) -> None:
+    # Two points, local linear: the fit is the line through them (hat matrix I, Hastie &
+    # Tibshirani 1990, Section 3.4), every residual is 0 whatever the noise, so nothing
+    # about the noise can be learnt; zero-width bands would claim certainty.
+    s = fit(np.array([1.0, 2.0]), np.array([1.0, 2.0]), kernel="gaussian", bandwidth=1.0)
+    t = np.array([1.0, 1.5, 2.0])
+    assert np.all(np.isfinite(s.predict(t)))
+    b = s.bands(t, method=method, replicates=50)
+    assert np.all(np.isnan(b.lower)) and np.all(np.isnan(b.upper)) and np.all(np.isnan(b.se))
+    assert "noise_not_estimable" in [w.code for w in b.warnings]
+    lower, upper = s.prediction_interval(t)
+    assert np.all(np.isnan(lower)) and np.all(np.isnan(upper))
+    assert np.all(np.isnan(s.standard_error(t))) and np.all(np.isnan(s.standard_error(t, robust=True)))
+
+
+def test_points_that_alone_determine_their_fit_are_left_out_of_the_noise_scale() -> None:
+    # A point 50 bandwidths from the rest is its own fit (residual 0, d_j = 0) and carries no
+    # weight in the others' fits; the constant noise variance is the mean of r_j^2 / d_j over the
+    # other points only, d_j = 1 - 2 L_jj + sum_k L_jk^2 from the explicit local linear smoother
+    # matrix e1' (X'KX)^-1 X'K (Fan & Gijbels 1996, eq. 3.4) of those points (unit weights).
+    from estimators.uncertainty import _noise_scale
+
+    rng = np.random.default_rng(8)
+    x = np.sort(rng.uniform(0.0, 5.0, 9))  # fewer than 10 informative points: the constant scale is used
+    y = np.sin(x) + rng.normal(0.0, 0.2, x.size)
+    h = 0.8
+    s = fit(np.append(x, 45.0), np.append(y, 3.0), kernel="gaussian", bandwidth=h)
+    big_l = np.empty((x.size, x.size))
+    for i, t in enumerate(x):
+        u = (x - t) / h
+        k = np.exp(-0.5 * u * u)
+        design = np.column_stack([np.ones_like(u), u])
+        big_l[i] = np.linalg.solve(design.T @ (k[:, None] * design), design.T * k)[0]
+    d = 1.0 - 2.0 * np.diag(big_l) + np.sum(big_l**2, axis=1)
+    r = y - big_l @ y
+    noise = _noise_scale(s)
+    assert noise.kind == "constant"
+    assert noise.constant == pytest.approx(np.mean(r**2 / d), rel=1e-9)

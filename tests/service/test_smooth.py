@@ -267,3 +267,19 @@ def test_small_response_is_not_gzipped(api: Harness) -> None:
     response = api.post("/v1/smooth", json={"x": X, "y": Y, "bandwidth": 2.0, "curve": {"points": 10}}, headers={"accept-encoding": "gzip"})
     assert response.status_code == 200
     assert "content-encoding" not in response.headers
+
+
+@pytest.mark.parametrize("method", ["analytic", "wild_bootstrap"])
+def test_bands_of_a_fit_through_every_point_are_null_with_a_warning(api: Harness, method: str) -> None:
+    # Two points, local linear: the curve is the line through them and the residuals are 0
+    # whatever the noise (Hastie & Tibshirani 1990, Section 3.4): no band can be given.
+    body = {"x": [1.0, 2.0], "y": [1.0, 2.0], "bandwidth": 1.0, "curve": {"points": 3}, "predict_at": [1.5], "bands": {"method": method, "replicates": 50}}
+    response = api.post("/v1/smooth", json=body)
+    assert response.status_code == 200, response.text
+    doc = response.json()
+    SmoothResponse.model_validate(doc)
+    assert all(v is not None for v in doc["curve"]["estimate"])
+    assert doc["curve"]["lower"] == [None] * 3 and doc["curve"]["upper"] == [None] * 3
+    assert [doc["predictions"][0][k] for k in ("lower", "upper", "interval_lower", "interval_upper")] == [None] * 4
+    assert doc["diagnostics"]["residual_scale"] is None
+    assert "noise_not_estimable" in [w["code"] for w in doc["warnings"]]
