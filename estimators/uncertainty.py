@@ -224,7 +224,9 @@ class Bands:
     Attributes
     ----------
     lower, upper : ndarray
-        Band limits; NaN where the estimate is undefined.
+        Band limits; NaN where the estimate is undefined, and everywhere when
+        every data point alone determines its fit (no residual carries noise
+        information; warning ``noise_not_estimable``).
     se : ndarray
         Standard error of the band's centre (bootstrap standard deviation for
         the bootstrap methods).
