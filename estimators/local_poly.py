@@ -38,6 +38,9 @@ __all__ = ["Smoother", "fit", "validate_sample", "SortedSample", "ENGINES"]
 ENGINES = ("auto", "exact", "binned")
 _SINGULAR = 1e-11  # relative determinant below which a local fit drops one degree
 _BINNED_MIN_N = 20000
+#: range for the largest weight: beyond about 1e70 (or below 1e-70) products of weighted sums in the
+#: local solves and the bootstrap's fourth powers overflow (vanish) and fits silently change degree
+_WEIGHT_SCALE = (1e-50, 1e50)
 #: residual degrees of freedom per point at or below which the noise scale is not estimable (see ``residual_scale``)
 _INTERPOLATING_DOF = 1e-9
 _BLOCK = 65536  # query points per block: bounds the memory of the moment arrays
@@ -123,7 +126,7 @@ def validate_sample(x: Any, y: Any, weights: Any = None) -> SortedSample:
     ------
     ValueError
         With a message a person can act on: lengths differ, non-finite values,
-        negative or all-zero weights, fewer than 2 points.
+        negative, all-zero or extremely scaled weights, fewer than 2 points.
     """
     xa = _as_float_array("x", x)
     ya = _as_float_array("y", y)
@@ -145,6 +148,13 @@ def validate_sample(x: Any, y: Any, weights: Any = None) -> SortedSample:
         raise ValueError("weights are all zero: at least one point must carry weight")
     if np.count_nonzero(wa > 0) < 2:
         raise ValueError("need at least 2 points with positive weight")
+    top = float(np.max(wa))
+    if not _WEIGHT_SCALE[0] <= top <= _WEIGHT_SCALE[1]:
+        raise ValueError(
+            f"the largest weight is {top:g}; it must lie between {_WEIGHT_SCALE[0]:g} and {_WEIGHT_SCALE[1]:g} "
+            "(products of the weighted sums would overflow or vanish); only the ratios of the weights matter "
+            "for the curve, so divide them by the largest"
+        )
     return _check_span(SortedSample(xa, ya, wa))
 
 

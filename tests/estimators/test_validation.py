@@ -72,3 +72,30 @@ def test_binned_bootstrap_grid_is_not_built_when_it_dwarfs_the_data() -> None:
     binned = s.bands(grid, replicates=50, seed=1, engine="binned")
     exact = s.bands(grid, replicates=50, seed=1, engine="exact")
     np.testing.assert_array_equal(binned.se, exact.se)
+
+
+@pytest.mark.parametrize("scale", [1e300, 1e-300, 1e-320])
+def test_weights_of_extreme_absolute_scale_are_refused(scale: float) -> None:
+    # Products of weighted sums overflow (or vanish) and the local solves silently dropped a
+    # degree: uniform weights of 1e300 gave another curve than unit weights. Refused instead.
+    x = np.arange(1.0, 6.0)
+    with pytest.raises(ValueError, match="largest weight"):
+        fit(x, np.sin(x), bandwidth=1.0, weights=np.full(x.size, scale))
+
+
+@pytest.mark.parametrize("degree", [0, 1, 2])
+@pytest.mark.parametrize("scale", [1e-45, 1e45])
+def test_a_common_factor_on_the_weights_changes_nothing_but_the_noise_unit(degree: int, scale: float) -> None:
+    # Weighted least squares is unchanged when every weight is multiplied by c (Fan & Gijbels
+    # 1996, eq. 3.4: the factor cancels from (X'WX)^-1 X'W); weights are precisions, so the
+    # noise standard deviation of a unit-weight observation grows by sqrt(c).
+    rng = np.random.default_rng(4)
+    x = rng.uniform(0.0, 10.0, 60)
+    y = np.sin(x) + rng.normal(0.0, 0.2, x.size)
+    t = np.linspace(0.0, 10.0, 9)
+    plain = fit(x, y, bandwidth=1.0, degree=degree)
+    scaled = fit(x, y, bandwidth=1.0, degree=degree, weights=np.full(x.size, scale))
+    np.testing.assert_allclose(scaled.predict(t), plain.predict(t), rtol=1e-9)
+    assert scaled.effective_df == pytest.approx(plain.effective_df, rel=1e-9)
+    assert scaled.residual_scale == pytest.approx(plain.residual_scale * np.sqrt(scale), rel=1e-9)
+    np.testing.assert_allclose(scaled.bands(t, method="analytic").upper, plain.bands(t, method="analytic").upper, rtol=1e-9)
