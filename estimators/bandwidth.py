@@ -167,6 +167,8 @@ PLUGIN_MAX_BLOCKS = 25
 #: plug-in: block counts tried by Mallows' Cp
 PLUGIN_BLOCK_COUNTS = (1, 2, 3, 4, 5, 6, 8, 10, 12, 15, 20, 25)
 _SINGULAR = 1e-10
+#: scores within this fraction of the best count as equal (the smoothest of them is chosen)
+_TIE = 1e-12
 
 
 @dataclass
@@ -1262,11 +1264,15 @@ def _select_scored(
     scorer: Any = exact if mode == "exact" else _BinnedScorer(sample, groups, kernel, degree, float(grid[0]), float(grid[-1]))
     scores, fits = _score_candidates(selector, grid, scorer, exact, groups)
     if not np.isfinite(scores).any():
+        hint = " (y is constant: every bandwidth gives the same flat curve)" if np.ptp(sample.ys) == 0 else ""
         raise ValueError(
-            f"no candidate bandwidth between {grid[0]:.4g} and {grid[-1]:.4g} could be scored with {selector}; "
-            "widen the range or give the bandwidth"
+            f"no candidate bandwidth between {grid[0]:.4g} and {grid[-1]:.4g} could be scored with {selector}{hint}; "
+            "widen the range or give a fixed bandwidth"
         )
     best = int(np.nanargmin(scores))
+    # equal scores (constant y, or data every candidate fits exactly): the smoothest of them
+    tied = np.flatnonzero(np.isfinite(scores) & (scores <= scores[best] + _TIE * abs(scores[best])))
+    best = int(tied.max())
     se = _score_se(selector, fits[best], groups)
     thr = scores[best] + (se if math.isfinite(se) else 0.0)
     within = np.flatnonzero(np.isfinite(scores) & (scores <= thr))

@@ -492,3 +492,23 @@ def test_data_that_cannot_be_selected_raise_a_clear_error() -> None:
         select_bandwidth(np.ones(10), np.arange(10.0))
     with pytest.raises(ValueError, match="needs at least 3 distinct x values"):
         select_bandwidth(np.array([0.0, 0.0, 1.0, 1.0]), np.arange(4.0), degree=2)
+
+
+@pytest.mark.parametrize("selector", ["gcv", "loocv"])
+def test_equal_scores_choose_the_smoothest_candidate(selector: str) -> None:
+    # Constant y: a local polynomial fit reproduces a constant exactly at every bandwidth (Fan &
+    # Gijbels 1996, Section 3.2), so every candidate scores 0 and nothing favours a rough curve;
+    # the largest candidate (the smoothest curve) is chosen and no roughness caution is raised.
+    x = np.arange(30.0)
+    sel = select_bandwidth(x, np.full(x.size, 5.0), selector=selector)
+    scores = np.asarray(sel.scores, dtype=float)
+    assert np.all(scores[np.isfinite(scores)] == 0.0)
+    assert sel.chosen == max(sel.candidates)
+    assert "implausibly_rough" not in [w.code for w in sel.warnings]
+
+
+def test_aicc_on_constant_y_says_why_it_cannot_score() -> None:
+    # AICc takes the log of the residual variance (Hurvich, Simonoff & Tsai 1998), which is 0 here.
+    x = np.arange(30.0)
+    with pytest.raises(ValueError, match="y is constant"):
+        select_bandwidth(x, np.full(x.size, 5.0), selector="aicc")
