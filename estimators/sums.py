@@ -398,7 +398,7 @@ class _GaussSources:
         self.tiles, starts = _sorted_groups(src_tile)
         self._wide_gaps: bool | None = None  # found when first needed (see _has_wide_gaps)
         self.moments = np.empty((self.tiles.size, ncol, terms))
-        _compiled.gauss_tile_moments(np.ascontiguousarray(v), starts, np.ascontiguousarray(q, dtype=float), _FACTORIALS, self.moments)
+        _compiled.gauss_tile_moments(np.ascontiguousarray(v), starts, self.q, _FACTORIALS, self.moments)
         self._cached_tiles = np.empty(0)
         self._cached_local = np.empty((0, ncol, terms))
         # Every tile with a source in reach fits the cache: keep it as one dense array indexed by tile.

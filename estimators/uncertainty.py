@@ -1138,7 +1138,8 @@ def bands(
     crit = math.nan
     alpha = 1.0 - lev
     res = _residuals(s)
-    ok &= bool(res.informative.any())  # no residual carries noise information: no band anywhere
+    noise_known = bool(res.informative.any())
+    ok &= noise_known  # no residual carries noise information: no band anywhere
     # the wild bootstrap's pointwise band needs no noise model; everything else uses the local scale
     noise = None if (method == "wild_bootstrap" and not simultaneous) else _noise_scale(s)
     t_ok, a_ok = ts[ok], a[ok]
@@ -1205,7 +1206,7 @@ def bands(
         bias_corrected=bool(bias_correction),
         centre_degree=degree,
         noise=noise_kind,
-        warnings=_cautions(s, t, centre, fit, simultaneous, noise_known=bool(res.informative.any())),
+        warnings=_cautions(s, t, centre, fit, simultaneous, noise_known=noise_known),
     )
 
 
