@@ -36,7 +36,7 @@ import numpy as np
 from numba import njit
 
 __all__ = ["window_moments", "window_fit", "solve_local", "linear_bin", "keys_interpolate", "gather_sorted",
-           "gauss_tile_moments", "gauss_translate", "gauss_evaluate", "gauss_transform", "hankel_quadratic_sum"]
+           "window_bounds_ascending", "gauss_sources", "gauss_translate", "gauss_evaluate", "gauss_transform", "hankel_quadratic_sum"]
 
 # reassociation and fused multiply-add only: no assumptions about NaN or infinity
 _FAST = {"reassoc", "contract"}
@@ -555,29 +555,75 @@ def gauss_direct(x, q, points, lo, hi, h, sums):  # pragma: no cover - compiled
                 prev, he = he, u * he - j * prev
 
 
-@njit(cache=True, nogil=True, error_model="numpy", fastmath=_FAST)
-def gauss_tile_moments(v, starts, q, fact, moments):  # pragma: no cover - compiled
-    """Fast Gauss transform sources: ``moments[s, c, j] = sum_{i in tile s} q[i, c] v_i^j / j!``.
+@njit(cache=True, nogil=True)
+def window_bounds_ascending(x, points, radius, closed, lo, hi):  # pragma: no cover - compiled
+    """``[lo, hi)``: the sorted ``x`` within ``radius`` of each ascending point, in one forward pass.
 
-    ``starts`` holds each tile's first index in the sorted data; ``v`` the
-    offsets from the tile centres in bandwidths.
+    ``closed``: ``x`` at exactly ``radius`` counts (``searchsorted`` sides
+    left / right); otherwise it does not (right / left).
     """
-    ntiles, ncol, nterms = moments.shape
-    n = v.size
-    for s in range(ntiles):
-        stop = starts[s + 1] if s + 1 < ntiles else n
+    n = x.size
+    a = 0
+    b = 0
+    for i in range(points.size):
+        left = points[i] - radius
+        right = points[i] + radius
+        if closed:
+            while a < n and x[a] < left:
+                a += 1
+            while b < n and x[b] <= right:
+                b += 1
+        else:
+            while a < n and x[a] <= left:
+                a += 1
+            while b < n and x[b] < right:
+                b += 1
+        lo[i] = a
+        hi[i] = b
+
+
+@njit(cache=True, nogil=True, error_model="numpy", fastmath=_FAST)
+def gauss_sources(x, origin, h, q, fact, nterms):  # pragma: no cover - compiled
+    """Fast Gauss transform sources in one pass over ascending ``x``: ``(tiles, moments)``.
+
+    ``tiles`` holds the distinct tile numbers ``floor((x - origin) / h)`` (as
+    floats), ``moments[s, c, j] = sum_{i in tile s} q[i, c] v_i^j / j!`` with
+    ``v_i = (x_i - origin) / h - (tile + 0.5)``, the same numbers as
+    the tile moments of the method (Greengard & Strain 1991).
+    """
+    n = x.size
+    ncol = q.shape[1]
+    ntiles = 0
+    prev = 0.0
+    for i in range(n):
+        t = np.floor((x[i] - origin) / h)
+        if ntiles == 0 or t != prev:
+            ntiles += 1
+            prev = t
+    tiles = np.empty(ntiles)
+    moments = np.zeros((ntiles, ncol, nterms))
+    powers = np.empty(nterms)
+    s = -1
+    for i in range(n):
+        scaled = (x[i] - origin) / h
+        t = np.floor(scaled)
+        if s < 0 or t != tiles[s]:
+            s += 1
+            tiles[s] = t
+        v = scaled - (t + 0.5)
+        p = 1.0
+        for j in range(nterms):  # one chain of products per point, shared by the columns
+            powers[j] = p
+            p *= v
         for c in range(ncol):
+            qc = q[i, c]
             for j in range(nterms):
-                moments[s, c, j] = 0.0
-        for i in range(starts[s], stop):
-            for c in range(ncol):
-                p = q[i, c]
-                for j in range(nterms):
-                    moments[s, c, j] += p
-                    p *= v[i]
+                moments[s, c, j] += qc * powers[j]
+    for s in range(ntiles):
         for c in range(ncol):
             for j in range(nterms):
                 moments[s, c, j] /= fact[j]
+    return tiles, moments
 
 
 @njit(cache=True, nogil=True, inline="always", fastmath=_FAST)

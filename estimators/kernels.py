@@ -94,6 +94,11 @@ class Kernel:
         """True when ``K(+-1) == 0`` so points exactly on the edge carry no weight."""
         return bool(np.isfinite(self.support) and float(self.function(np.array([1.0]))[0]) == 0.0)
 
+    @cached_property
+    def at_zero(self) -> float:
+        """``K(0)``, the weight of a point in its own window (leverages)."""
+        return float(self.function(np.array([0.0]))[0])
+
     @property
     def efficiency(self) -> float:
         """AMISE efficiency relative to the Epanechnikov kernel (Wand & Jones 1995, 2.7).

@@ -256,6 +256,7 @@ class Smoother:
         self.selection = selection
         self._cautions: list[Caution] = []
         self._plans: dict[str, MomentPlan] = {}
+        self._engines: dict[int, str] = {}
 
     # -- basic facts -------------------------------------------------------
     @property
@@ -282,7 +283,10 @@ class Smoother:
     def _engine_for(self, m: int) -> str:
         if self.engine_request == "exact":
             return "exact"
-        return choose_engine(self.engine_request, self.kernel_spec, self.sample, self.bandwidth, m)
+        engine = self._engines.get(m)
+        if engine is None:
+            engine = self._engines[m] = choose_engine(self.engine_request, self.kernel_spec, self.sample, self.bandwidth, m)
+        return engine
 
     def moments(self, points: np.ndarray, values: np.ndarray, order: int, power: int = 1) -> np.ndarray:
         """Windowed sums ``sum_i q_i K(u_i)^power u_i^k`` over the sorted sources (see :mod:`sums`)."""
@@ -402,8 +406,7 @@ class Smoother:
 
     def leverages(self) -> np.ndarray:
         """Diagonal of the smoother matrix, ``L_ii = w_i K(0) [S(x_i)^{-1}]_00``, caller's order."""
-        k0 = float(self.kernel_spec(np.array([0.0]))[0])
-        return self.sample.w * k0 * self._unsort(self._at_data_sorted.inv[:, 0, 0])
+        return self.sample.w * self.kernel_spec.at_zero * self._unsort(self._at_data_sorted.inv[:, 0, 0])
 
     @cached_property
     def effective_df(self) -> float:

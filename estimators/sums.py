@@ -393,12 +393,8 @@ class _GaussSources:
         self.translations = _translation_matrices(terms, reach)
         self.ncol = ncol
         self.origin = float(x[0])
-        src_tile = np.floor((x - self.origin) / self.h)
-        v = (x - self.origin) / self.h - (src_tile + 0.5)
-        self.tiles, starts = _sorted_groups(src_tile)
+        self.tiles, self.moments = _compiled.gauss_sources(np.ascontiguousarray(x, dtype=float), self.origin, self.h, self.q, _FACTORIALS, terms)
         self._wide_gaps: bool | None = None  # found when first needed (see _has_wide_gaps)
-        self.moments = np.empty((self.tiles.size, ncol, terms))
-        _compiled.gauss_tile_moments(np.ascontiguousarray(v), starts, self.q, _FACTORIALS, self.moments)
         self._cached_tiles = np.empty(0)
         self._cached_local = np.empty((0, ncol, terms))
         # Every tile with a source in reach fits the cache: keep it as one dense array indexed by tile.
@@ -430,18 +426,19 @@ class _GaussSources:
         out[hit] = self._cached_local[pos[hit]]
         return out
 
-    def transform(self, points: np.ndarray, conv: np.ndarray) -> np.ndarray:
+    def transform(self, points: np.ndarray, conv: np.ndarray, ascending: bool = False) -> np.ndarray:
         """``sum_j conv[j, k] D_j(t)`` with ``D_j = d^j/dw^j sum_i q_i exp(-(x_i - t)^2 / 2h^2)`` in units of ``h``.
 
         ``D_j = sum_i q_i He_j(u_i) exp(-u_i^2/2)`` with ``u_i = (x_i - t)/h``
         (the identity for ``conv`` gives the derivatives themselves).
-        ``points`` in any order (ascending needs no sort). Returns shape ``(m, ncol, conv.shape[1])``.
+        ``points`` in any order (ascending needs no sort; ``ascending=True``
+        promises it and skips the check). Returns shape ``(m, ncol, conv.shape[1])``.
         """
         m = points.size
         nk = conv.shape[1]
         if m == 0:
             return np.zeros((0, self.ncol, nk))
-        if not _is_sorted(points):
+        if not ascending and not _is_sorted(points):
             perm = np.argsort(points, kind="stable")
             out = np.empty((m, self.ncol, nk))
             out[perm] = self.transform(points[perm], conv)
@@ -556,6 +553,19 @@ def _hermite_to_power(order: int) -> np.ndarray:
     return p
 
 
+@lru_cache(maxsize=None)
+def _gauss_conversion(order: int, power: int) -> np.ndarray:
+    """``conv[j, k]`` with ``sum q u^k K(u)^power = sum_j conv[j, k] (sum q He_j(u') f(u'))``, ``u' = sqrt(power) u``.
+
+    ``f`` the unnormalised gaussian ``exp(-u'^2 / 2)``; read-only, built once per ``(order, power)``.
+    """
+    norm = (2.0 * math.pi) ** (-0.5 * power)
+    scale = norm * (1.0 / math.sqrt(power)) ** np.arange(order + 1)  # u = u' / sqrt(power)
+    conv = np.ascontiguousarray(_hermite_to_power(order).T * scale)
+    conv.setflags(write=False)
+    return conv
+
+
 class _GaussianPlan:
     """Moments for the gaussian kernel (or its square) by the fast Gauss transform."""
 
@@ -566,13 +576,10 @@ class _GaussianPlan:
         # (11 tiles of h / sqrt 2) cannot matter there; anywhere else the full cutoff is needed
         reach = _REACH if data_points else _reach_in_tiles(power)
         self.sources = _GaussSources(x, q, bandwidth / math.sqrt(power), terms, reach)
-        norm = (2.0 * math.pi) ** (-0.5 * power)
-        scale = norm * (1.0 / math.sqrt(power)) ** np.arange(order + 1)  # u = u' / sqrt(power)
-        # sum q u^k K(u)^power = scale_k sum_j P[k, j] (sum q He_j(u') f(u')): one matrix for the transform
-        self.conv = np.ascontiguousarray(_hermite_to_power(order).T * scale)
+        self.conv = _gauss_conversion(order, power)
 
     def __call__(self, points: np.ndarray) -> np.ndarray:
-        return self.sources.transform(points, self.conv)
+        return self.sources.transform(points, self.conv, ascending=True)  # plans take ascending points
 
 
 # ---------------------------------------------------------------------------
@@ -736,7 +743,10 @@ class MomentPlan:
         if self._evaluate == self._compact:
             return self._compact(points)
         mom = self._evaluate(points)
-        lo, hi = window_bounds(self.x, points, self.kernel, self.bandwidth)
+        lo = np.empty(m, dtype=np.int64)
+        hi = np.empty(m, dtype=np.int64)
+        radius = effective_radius(self.kernel) * self.bandwidth
+        _compiled.window_bounds_ascending(self.x, np.ascontiguousarray(points, dtype=float), radius, not self.kernel.vanishes_at_edge, lo, hi)
         return mom, lo, hi
 
 

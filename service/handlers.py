@@ -260,7 +260,8 @@ def _grid(lo: float, hi: float, count: int) -> np.ndarray:
 
     ``lo * (1 - t) + hi * t`` stays finite even when ``hi - lo`` would overflow a double.
     """
-    t = np.linspace(0.0, 1.0, count)
+    t = np.arange(count, dtype=float)
+    t /= count - 1
     grid = lo * (1.0 - t) + hi * t
     grid[0], grid[-1] = lo, hi
     return grid
