@@ -627,45 +627,46 @@ def gauss_sources(x, origin, h, q, fact, nterms):  # pragma: no cover - compiled
 
 
 @njit(cache=True, nogil=True, inline="always", fastmath=_FAST)
-def _translate_one(amat, moments, s, row):  # pragma: no cover - compiled
-    """``row[c, k] += sum_j A[k, j] moments[s, c, j]`` for one source tile."""
-    ncol, nterms = moments.shape[1], moments.shape[2]
+def _translate_one(amat, moments, s, row, nd):  # pragma: no cover - compiled
+    """``row[c, k] += sum_j A[k, j] moments[s, c, j]`` for one source tile (``A`` is zero for ``j + k >= nd``)."""
+    ncol = moments.shape[1]
     for c in range(ncol):
-        for k in range(nterms):
+        for k in range(nd):
             acc = 0.0
-            for j in range(nterms - k):
+            for j in range(nd - k):
                 acc += amat[k, j] * moments[s, c, j]
             row[c, k] += acc
 
 
 @njit(cache=True, nogil=True, inline="always", fastmath=_FAST)
-def _translate_pair(amat, moments, right, left, row, pair):  # pragma: no cover - compiled
+def _translate_pair(amat, moments, right, left, row, pair, nd):  # pragma: no cover - compiled
     """Both source tiles at offsets ``+D`` (``right``) and ``-D`` (``left``) with the one matrix ``A_D``.
 
     The kernel is even, so ``A_{-D}[k, j] = (-1)^(j+k) A_D[k, j]``: the pair
     contributes ``sum_j A_D[k, j] (M_right[j] + (-1)^(j+k) M_left[j])``, one
-    product per order ``k`` instead of two.  ``pair`` is scratch of shape ``(2, N)``.
+    product per order ``k`` instead of two.  ``pair`` is scratch of shape ``(2, N)``;
+    ``A_D`` is zero for ``j + k >= nd``.
     """
-    ncol, nterms = moments.shape[1], moments.shape[2]
+    ncol = moments.shape[1]
     for c in range(ncol):
-        for j in range(nterms):
+        for j in range(nd):
             mirrored = moments[left, c, j] if j % 2 == 0 else -moments[left, c, j]
             pair[0, j] = moments[right, c, j] + mirrored  # even k
             pair[1, j] = moments[right, c, j] - mirrored  # odd k
-        for k in range(nterms):
+        for k in range(nd):
             src = pair[k % 2]
             acc = 0.0
-            for j in range(nterms - k):
+            for j in range(nd - k):
                 acc += amat[k, j] * src[j]
             row[c, k] += acc
 
 
 @njit(cache=True, nogil=True, inline="always", fastmath=_FAST)
-def _translate_tile(tt, tiles, moments, translations, reach, first, row, pair):  # pragma: no cover - compiled
+def _translate_tile(tt, tiles, moments, translations, lengths, reach, first, row, pair):  # pragma: no cover - compiled
     """``row[c, k] = sum_D sum_j A_D[k, j] moments[S, c, j]`` over source tiles within ``reach`` of ``tt``.
 
     Source tiles at opposite offsets ``+D`` and ``-D`` share one matrix
-    (:func:`_translate_pair`).  ``first`` is where the search for the first
+    (:func:`_translate_pair`); ``A_D`` is zero for ``j + k >= lengths[D + reach]``.  ``first`` is where the search for the first
     source tile in reach starts (target tiles visited in ascending order only
     move it forward); returns its new value.
     """
@@ -683,32 +684,29 @@ def _translate_tile(tt, tiles, moments, translations, reach, first, row, pair): 
     while lo <= hi:  # from the farthest tiles inwards, pairing equal distances
         left, right = int(tiles[lo] - tt), int(tiles[hi] - tt)
         if lo < hi and left == -right:
-            _translate_pair(translations[right + reach], moments, hi, lo, row, pair)
+            _translate_pair(translations[right + reach], moments, hi, lo, row, pair, lengths[right + reach])
             lo += 1
             hi -= 1
         elif -left > right:
-            _translate_one(translations[left + reach], moments, lo, row)
+            _translate_one(translations[left + reach], moments, lo, row, lengths[left + reach])
             lo += 1
         else:
-            _translate_one(translations[right + reach], moments, hi, row)
+            _translate_one(translations[right + reach], moments, hi, row, lengths[right + reach])
             hi -= 1
     return first
 
 
 @njit(cache=True, nogil=True, error_model="numpy", fastmath=_FAST)
-def gauss_translate(tiles, moments, target_tiles, translations, reach, local):  # pragma: no cover - compiled
+def gauss_translate(tiles, moments, target_tiles, translations, lengths, reach, local):  # pragma: no cover - compiled
     """Fast Gauss transform: local expansions ``local[t, c, k] = sum_D sum_j A_D[k, j] moments[S, c, j]``.
 
     Sums over the source tiles ``S`` within ``reach`` tiles of each target tile
-    (both sorted); ``translations[D + reach]`` is ``A_D`` (zero where ``j + k >= N``).
+    (both sorted); ``translations[D + reach]`` is ``A_D``, zero where ``j + k >= lengths[D + reach]``.
     """
     pair = np.empty((2, moments.shape[2]))
     first = 0
     for ti in range(target_tiles.size):
-        first = _translate_tile(target_tiles[ti], tiles, moments, translations, reach, first, local[ti], pair)
-
-
-_LANES = 8  # points evaluated together, one vector lane each
+        first = _translate_tile(target_tiles[ti], tiles, moments, translations, lengths, reach, first, local[ti], pair)
 
 
 @njit(cache=True, nogil=True, inline="always")
@@ -721,18 +719,30 @@ def _derivative_factors(fact, nk, nterms):  # pragma: no cover - compiled
     return ratio
 
 
+@njit(cache=True, nogil=True, inline="always")
+def _store_four(out, b0, nb, c, k, v0, v1, v2, v3):  # pragma: no cover - compiled
+    out[b0, c, k] = v0
+    if nb > 1:
+        out[b0 + 1, c, k] = v1
+    if nb > 2:
+        out[b0 + 2, c, k] = v2
+    if nb > 3:
+        out[b0 + 3, c, k] = v3
+
+
 @njit(cache=True, nogil=True, inline="always", fastmath=_FAST)
-def _evaluate_run(row, ratio, conv, w, i0, i1, coef, pw, acc, out):  # pragma: no cover - compiled
+def _evaluate_run(row, ratio, conv, w, i0, i1, coef, out):  # pragma: no cover - compiled
     """``out[i, c, k] = sum_j conv[j, k] D_j(w_i)`` for the points ``i0 <= i < i1`` of one target tile.
 
     ``D_j`` is derivative ``j`` of the tile's local expansion ``row[c]``; the
     combination ``conv`` is folded into the polynomial coefficients once per
-    tile.  Powers of ``w`` are formed for ``_LANES`` points at once and every
-    output is a dot product with them, vectorised across the points (no
-    serial Horner chain).
+    tile.  The polynomials are evaluated by Horner's rule for four points and
+    two outputs at a time: eight independent chains of multiply-adds held in
+    registers, so no step waits on the latency of the one before.
     """
     ncol, nterms = row.shape
     nk = ratio.shape[0]
+    nr = ncol * nk
     for c in range(ncol):
         for k in range(nk):
             r = c * nk + k
@@ -743,24 +753,37 @@ def _evaluate_run(row, ratio, conv, w, i0, i1, coef, pw, acc, out):  # pragma: n
                 if f != 0.0:
                     for n in range(nterms - j):
                         coef[r, n] += f * row[c, n + j] * ratio[j, n]
-    for b0 in range(i0, i1, _LANES):
-        nb = min(_LANES, i1 - b0)
-        for b in range(_LANES):
-            pw[0, b] = 1.0
-            pw[1, b] = w[b0 + b] if b < nb else 0.0
-        for j in range(2, nterms):
-            for b in range(_LANES):
-                pw[j, b] = pw[j - 1, b] * pw[1, b]
-        for r in range(ncol * nk):
-            for b in range(_LANES):
-                acc[b] = 0.0
-            for j in range(nterms):
-                cj = coef[r, j]
-                for b in range(_LANES):
-                    acc[b] += cj * pw[j, b]
-            c = r // nk
-            for b in range(nb):
-                out[b0 + b, c, r - c * nk] = acc[b]
+    top = nterms - 1
+    for b0 in range(i0, i1, 4):
+        nb = min(4, i1 - b0)
+        w0 = w[b0]
+        w1 = w[b0 + 1] if nb > 1 else 0.0
+        w2 = w[b0 + 2] if nb > 2 else 0.0
+        w3 = w[b0 + 3] if nb > 3 else 0.0
+        for r0 in range(0, nr, 2):
+            r1 = r0 + 1 if r0 + 1 < nr else r0
+            a0 = coef[r0, top]
+            a1 = a0
+            a2 = a0
+            a3 = a0
+            e0 = coef[r1, top]
+            e1 = e0
+            e2 = e0
+            e3 = e0
+            for j in range(top - 1, -1, -1):
+                cj = coef[r0, j]
+                dj = coef[r1, j]
+                a0 = a0 * w0 + cj
+                a1 = a1 * w1 + cj
+                a2 = a2 * w2 + cj
+                a3 = a3 * w3 + cj
+                e0 = e0 * w0 + dj
+                e1 = e1 * w1 + dj
+                e2 = e2 * w2 + dj
+                e3 = e3 * w3 + dj
+            _store_four(out, b0, nb, r0 // nk, r0 % nk, a0, a1, a2, a3)
+            if r1 != r0:
+                _store_four(out, b0, nb, r1 // nk, r1 % nk, e0, e1, e2, e3)
 
 
 @njit(cache=True, nogil=True, error_model="numpy", fastmath=_FAST)
@@ -773,20 +796,18 @@ def gauss_evaluate(local, which, w, fact, conv, out):  # pragma: no cover - comp
     nk = conv.shape[0]
     ratio = _derivative_factors(fact, nk, nterms)
     coef = np.zeros((ncol * nk, nterms))
-    pw = np.empty((nterms, _LANES))
-    acc = np.empty(_LANES)
     m = w.size
     i0 = 0
     while i0 < m:
         i1 = i0 + 1
         while i1 < m and which[i1] == which[i0]:
             i1 += 1
-        _evaluate_run(local[which[i0]], ratio, conv, w, i0, i1, coef, pw, acc, out)
+        _evaluate_run(local[which[i0]], ratio, conv, w, i0, i1, coef, out)
         i0 = i1
 
 
 @njit(cache=True, nogil=True, error_model="numpy", fastmath=_FAST)
-def gauss_transform(points, origin, h, tile_lo, tiles, moments, translations, reach, fact, conv, local, filled, out):  # pragma: no cover - compiled
+def gauss_transform(points, origin, h, tile_lo, tiles, moments, translations, lengths, reach, fact, conv, local, filled, out):  # pragma: no cover - compiled
     """The whole target side of the fast Gauss transform in one pass over ascending ``points``.
 
     ``local[t]`` caches the local expansion of target tile ``tile_lo + t``
@@ -801,8 +822,6 @@ def gauss_transform(points, origin, h, tile_lo, tiles, moments, translations, re
     span = filled.size
     ratio = _derivative_factors(fact, nk, nterms)
     coef = np.zeros((ncol * nk, nterms))
-    pw = np.empty((nterms, _LANES))
-    acc = np.empty(_LANES)
     pair = np.empty((2, nterms))
     m = points.size
     w = np.empty(m)
@@ -822,9 +841,9 @@ def gauss_transform(points, origin, h, tile_lo, tiles, moments, translations, re
         if rel >= 0.0 and rel < span:
             t = int(rel)
             if not filled[t]:
-                first = _translate_tile(tile, tiles, moments, translations, reach, first, local[t], pair)
+                first = _translate_tile(tile, tiles, moments, translations, lengths, reach, first, local[t], pair)
                 filled[t] = True
-            _evaluate_run(local[t], ratio, conv, w, i0, i1, coef, pw, acc, out)
+            _evaluate_run(local[t], ratio, conv, w, i0, i1, coef, out)
         else:
             for i in range(i0, i1):
                 for c in range(ncol):

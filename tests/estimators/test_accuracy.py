@@ -328,6 +328,43 @@ def test_gaussian_translation_polynomial_matches_the_kernel_and_its_derivatives(
         assert np.max(np.abs(P.polyval(s, P.polyder(coef, j)) - exact)) <= bound
 
 
+def _polynomial_errors(offset: int, terms: int) -> np.ndarray:
+    """Largest error on ``|s| <= 1`` of the economized polynomial and of its derivatives 0-4 (closed form, see above)."""
+    from numpy.polynomial import polynomial as P
+    from scipy.special import eval_hermitenorm
+
+    from estimators import sums
+
+    coef = sums.economized_kernel(float(offset), terms)
+    s = np.linspace(-1.0, 1.0, 2001)
+    u = offset + s
+    return np.array([
+        np.max(np.abs(P.polyval(s, P.polyder(coef, j)) - (-1.0) ** j * eval_hermitenorm(j, u) * np.exp(-0.5 * u * u)))
+        for j in range(5)
+    ])
+
+
+@pytest.mark.parametrize(("terms", "reach"), [(24, 11), (18, 11), (24, 16)])
+def test_shorter_polynomials_far_from_the_target_are_as_accurate_as_the_full_length_near_it(terms: int, reach: int) -> None:
+    # Far tiles get fewer terms; the kernel and its first four derivatives (closed form: Hermite
+    # polynomials, Abramowitz & Stegun 1964, 22.2.15) must stay within the worst error the full
+    # length makes at any offset, so the transform's error per unit of mass does not grow.
+    from estimators import sums
+
+    lengths = sums.offset_terms(terms, reach)
+    assert lengths.size == 2 * reach + 1 and np.array_equal(lengths, lengths[::-1])
+    assert np.all((lengths >= 1) & (lengths <= terms))
+    full = np.array([_polynomial_errors(d, terms) for d in range(reach + 1)])
+    worst = full.max(axis=0)
+    for d in range(reach + 1):
+        short = _polynomial_errors(d, int(lengths[reach + d]))
+        assert np.all(short <= 1.5 * worst + 1e-300), (d, short, worst)
+    table = sums._translation_matrices(terms, reach)
+    jk = np.add.outer(np.arange(terms), np.arange(terms))
+    for i, nd in enumerate(lengths):
+        assert not np.any(table[i][jk >= nd])  # the compiled loops skip exactly these entries
+
+
 def _dense_local_linear_weights(x: np.ndarray, t: float, h: float) -> np.ndarray:
     """``l(t) = e_1' (X'WX)^-1 X'W`` for the gaussian local linear fit at ``t``, weights scaled by their maximum."""
     d = x - t
