@@ -713,6 +713,11 @@ def compiled_shape(shape: Shape) -> tuple[tuple[float, ...], tuple[int, ...], tu
     return poly, sides, ((0,) if shape.cosines else ()), float(amp), float(omega)
 
 
+#: window bounds by one forward sweep (O(n + m)) when the points are at least 1/16 of the data,
+#: by binary search (O(m log n)) when fewer
+_SWEEP_MIN_SHARE = 16
+
+
 def _is_sorted(a: np.ndarray) -> bool:
     return bool(a.size < 2 or np.all(a[1:] >= a[:-1]))
 
@@ -790,6 +795,9 @@ class MomentPlan:
         if self._evaluate == self._compact:
             return self._compact(points)
         mom = self._evaluate(points)
+        if m * _SWEEP_MIN_SHARE < self.x.size:  # few points among many data: binary searches, not a sweep over all
+            lo, hi = window_bounds(self.x, points, self.kernel, self.bandwidth)
+            return mom, lo, hi
         lo = np.empty(m, dtype=np.int64)
         hi = np.empty(m, dtype=np.int64)
         radius = effective_radius(self.kernel) * self.bandwidth

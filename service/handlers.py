@@ -48,7 +48,7 @@ class JobContext:
 def _array(values: Iterable[float] | None) -> np.ndarray | None:
     if values is None:
         return None
-    return np.asarray(values, dtype=float)
+    return np.fromiter(values, dtype=float, count=len(values))  # validated floats; a little faster than asarray
 
 
 def _cautions(items: Iterable[Any]) -> list[dict[str, str]]:
