@@ -69,6 +69,7 @@ def serve(overrides: dict[str, Any]) -> int:
     import uvicorn
     from pydantic import ValidationError
 
+    from .allocator import tune_allocator
     from .app import create_app
     from .logs import configure_logging, uvicorn_log_config
     from .settings import Settings, describe_errors, unknown_variables
@@ -80,6 +81,7 @@ def serve(overrides: dict[str, Any]) -> int:
             print(f"bandwise: {line}", file=sys.stderr)
         return 2
     configure_logging(settings.log_level)
+    tune_allocator()  # the HTTP process holds every request body a few times over (workers do the same for themselves)
     for name, close in unknown_variables(os.environ):
         hint = f"; did you mean {close}?" if close else ""
         log.warning(f"{name} is not a Bandwise setting and is ignored{hint}", extra={"fields": {"variable": name, "did_you_mean": close}})

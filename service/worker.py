@@ -14,34 +14,8 @@ import signal
 from multiprocessing.connection import Connection
 from typing import Any
 
+from .allocator import tune_allocator
 from .jobs import Job
-
-
-_M_TRIM_THRESHOLD = -1
-_M_MMAP_THRESHOLD = -3
-_MMAP_THRESHOLD = 64 * 1024 * 1024
-_TRIM_THRESHOLD = 256 * 1024 * 1024
-
-
-def tune_allocator() -> bool:
-    """Keep freed array memory for reuse instead of unmapping it after every request (glibc only).
-
-    By default glibc hands large blocks (an array of 100,000 doubles is one) to
-    ``mmap`` and returns them on ``free``, so every request pays page faults to
-    get zeroed pages again: about a fifth of the time of a 1e5-point fit.  With
-    blocks up to 64 MiB served from the heap and the heap trimmed only beyond
-    256 MiB of free space, a worker reuses its memory from one request to the
-    next.  Returns False where ``mallopt`` is not available.
-    """
-    try:
-        import ctypes
-
-        libc = ctypes.CDLL("libc.so.6")
-        ok = libc.mallopt(_M_MMAP_THRESHOLD, _MMAP_THRESHOLD) == 1
-        ok = libc.mallopt(_M_TRIM_THRESHOLD, _TRIM_THRESHOLD) == 1 and ok
-        return ok
-    except (OSError, AttributeError):
-        return False
 
 
 def yield_to_http(nice: int) -> bool:

@@ -8,7 +8,7 @@ import sys
 
 import pytest
 
-from service.worker import tune_allocator
+from service.allocator import tune_allocator
 
 
 @pytest.mark.skipif(not sys.platform.startswith("linux") or ctypes.util.find_library("c") is None, reason="glibc mallopt only")
