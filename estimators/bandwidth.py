@@ -452,10 +452,6 @@ def _take(fitted: np.ndarray, lev: np.ndarray, idx: np.ndarray | None) -> tuple[
     return (fitted, lev) if idx is None else (fitted[idx], lev[idx])
 
 
-def _k0(kernel: Kernel) -> float:
-    return float(kernel(np.array([0.0]))[0])
-
-
 class _ExactScorer:
     """Exact fits with the core's fast sums, evaluated once per distinct x."""
 
@@ -463,7 +459,7 @@ class _ExactScorer:
 
     def __init__(self, sample: SortedSample, groups: _Groups, kernel: Kernel, degree: int) -> None:
         self.sample, self.groups, self.kernel, self.degree = sample, groups, kernel, degree
-        self.k0 = _k0(kernel)
+        self.k0 = kernel.at_zero
 
     def evaluate(self, h: float) -> _Fit:
         g = self.groups
@@ -592,7 +588,7 @@ class _BinnedScorer:
         self, sample: SortedSample, groups: _Groups, kernel: Kernel, degree: int, h_lo: float, h_hi: float
     ) -> None:
         self.sample, self.groups, self.kernel, self.degree = sample, groups, kernel, degree
-        self.k0 = _k0(kernel)
+        self.k0 = kernel.at_zero
         self.radius = kernel.support if math.isfinite(kernel.support) else GAUSSIAN_CUTOFF
         xs = sample.xs
         span = float(xs[-1] - xs[0])

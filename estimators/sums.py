@@ -141,16 +141,28 @@ def effective_radius(kernel: Kernel) -> float:
     return kernel.support if math.isfinite(kernel.support) else GAUSSIAN_CUTOFF
 
 
+#: ascending points at least 1/16 as many as the data get their windows by one forward sweep
+#: (O(n + m)); fewer get binary searches (O(m log n)), which do not walk every data point
+_SWEEP_MIN_SHARE = 16
+
+
 def window_bounds(
-    x: np.ndarray, points: np.ndarray, kernel: Kernel, bandwidth: float
+    x: np.ndarray, points: np.ndarray, kernel: Kernel, bandwidth: float, ascending: bool = False
 ) -> tuple[np.ndarray, np.ndarray]:
     """Index range ``[lo, hi)`` of sorted ``x`` inside each point's window.
 
     Kernels that vanish at ``|u| = 1`` use the open window (edge points carry no
-    weight); the uniform kernel uses the closed one.
+    weight); the uniform kernel uses the closed one.  ``ascending=True``
+    promises sorted points, which allows the forward sweep.
     """
     radius = effective_radius(kernel) * bandwidth
     closed = not kernel.vanishes_at_edge
+    m = points.size
+    if ascending and m * _SWEEP_MIN_SHARE >= x.size:
+        lo = np.empty(m, dtype=np.int64)
+        hi = np.empty(m, dtype=np.int64)
+        _compiled.window_bounds_ascending(x, np.ascontiguousarray(points, dtype=float), radius, closed, lo, hi)
+        return lo, hi
     lo = np.searchsorted(x, points - radius, side="left" if closed else "right")
     hi = np.searchsorted(x, points + radius, side="right" if closed else "left")
     return lo, hi
@@ -503,6 +515,12 @@ class _GaussSources:
         out[far] = np.einsum("mcj,jk->mck", sums, conv)
 
 
+def _chebyshev_kernel(offset: float) -> np.ndarray:
+    """Chebyshev coefficients on ``|s| <= 1`` of the :data:`_TAYLOR_TERMS`-term Taylor series of ``exp(-(offset + s)^2 / 2)``."""
+    taylor = _hermite_functions(np.array(float(offset)), _TAYLOR_TERMS) / _FACTORIALS_TAYLOR
+    return np.polynomial.chebyshev.poly2cheb(taylor)
+
+
 def economized_kernel(offset: float, terms: int = N_TERMS) -> np.ndarray:
     """Power-basis coefficients ``a_n`` (``n < terms``) with ``sum a_n s^n ~ exp(-(offset + s)^2 / 2)`` on ``|s| <= 1``.
 
@@ -513,8 +531,7 @@ def economized_kernel(offset: float, terms: int = N_TERMS) -> np.ndarray:
     and the result is within rounding of the Chebyshev truncation of the
     kernel (see the module notes for the bound).
     """
-    taylor = _hermite_functions(np.array(float(offset)), _TAYLOR_TERMS) / _FACTORIALS_TAYLOR
-    power = np.polynomial.chebyshev.cheb2poly(np.polynomial.chebyshev.poly2cheb(taylor)[:terms])
+    power = np.polynomial.chebyshev.cheb2poly(_chebyshev_kernel(offset)[:terms])
     out = np.zeros(terms)
     out[: power.size] = power  # the conversion drops trailing zeros
     return out
@@ -543,8 +560,7 @@ def offset_terms(terms: int = N_TERMS, reach: int = _REACH) -> np.ndarray:
     orders = 2.0 * np.arange(_DERIVATIVES + 1)
     tails = np.zeros((reach + 1, orders.size, _TAYLOR_TERMS + 1))
     for d in range(reach + 1):
-        taylor = _hermite_functions(np.array(float(d)), _TAYLOR_TERMS) / _FACTORIALS_TAYLOR
-        c = np.abs(np.polynomial.chebyshev.poly2cheb(taylor))
+        c = np.abs(_chebyshev_kernel(float(d)))
         n = np.arange(c.size, dtype=float)
         weighted = c[None, :] * n[None, :] ** orders[:, None]
         tails[d, :, : c.size] = np.cumsum(weighted[:, ::-1], axis=1)[:, ::-1]  # tails[d, r, N] = sum_{n >= N}
@@ -713,11 +729,6 @@ def compiled_shape(shape: Shape) -> tuple[tuple[float, ...], tuple[int, ...], tu
     return poly, sides, ((0,) if shape.cosines else ()), float(amp), float(omega)
 
 
-#: window bounds by one forward sweep (O(n + m)) when the points are at least 1/16 of the data,
-#: by binary search (O(m log n)) when fewer
-_SWEEP_MIN_SHARE = 16
-
-
 def _is_sorted(a: np.ndarray) -> bool:
     return bool(a.size < 2 or np.all(a[1:] >= a[:-1]))
 
@@ -795,13 +806,7 @@ class MomentPlan:
         if self._evaluate == self._compact:
             return self._compact(points)
         mom = self._evaluate(points)
-        if m * _SWEEP_MIN_SHARE < self.x.size:  # few points among many data: binary searches, not a sweep over all
-            lo, hi = window_bounds(self.x, points, self.kernel, self.bandwidth)
-            return mom, lo, hi
-        lo = np.empty(m, dtype=np.int64)
-        hi = np.empty(m, dtype=np.int64)
-        radius = effective_radius(self.kernel) * self.bandwidth
-        _compiled.window_bounds_ascending(self.x, np.ascontiguousarray(points, dtype=float), radius, not self.kernel.vanishes_at_edge, lo, hi)
+        lo, hi = window_bounds(self.x, points, self.kernel, self.bandwidth, ascending=True)
         return mom, lo, hi
 
 

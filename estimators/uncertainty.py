@@ -766,7 +766,7 @@ def _grid_step(s: "Smoother") -> float | None:
     if not math.isfinite(k.support):
         return s.bandwidth / _GAUSS_GRID
     edge = float(k(np.array([1.0]))[0])
-    if edge > 1e-12 * float(k(np.array([0.0]))[0]):
+    if edge > 1e-12 * k.at_zero:
         return None
     return s.bandwidth / 128.0
 
