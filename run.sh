@@ -3,6 +3,7 @@
 #   ./run.sh serve [--host H] [--port P] [--workers N]   run the service and its demo page
 #   ./run.sh test [pytest args]                          run the whole test suite
 #   ./run.sh bench                                       print every benchmark table
+#   ./run.sh lint                                        style and type gate (ruff, mypy)
 # The first call creates .venv and installs the package with its test extras.
 set -euo pipefail
 cd "$(dirname "$0")"
@@ -21,5 +22,6 @@ case "$cmd" in
     serve) exec "$venv/bin/bandwise" serve "$@" ;;
     test)  exec "$venv/bin/python" -m pytest "$@" ;;
     bench) exec "$venv/bin/python" -m tests.bench "$@" ;;
-    *) echo "usage: ./run.sh serve|test|bench [args]" >&2; exit 2 ;;
+    lint)  "$venv/bin/ruff" check . && exec "$venv/bin/mypy" ;;
+    *) echo "usage: ./run.sh serve|test|bench|lint [args]" >&2; exit 2 ;;
 esac

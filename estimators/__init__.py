@@ -3,14 +3,20 @@
 Pure numerics (numpy, scipy, compiled numba loops); no web, no I/O.
 """
 
-from .bandwidth import Selection, select_bandwidth
+from .bandwidth import RULES, SCORED_SELECTORS, SELECTORS, Selection, select_bandwidth
 from .cautions import Caution
 from .kernels import KERNELS, Kernel, convert_bandwidth
-from .local_poly import Smoother, fit
+from .local_poly import ENGINES, Smoother, fit
+from .uncertainty import METHODS as BAND_METHODS
 from .uncertainty import Bands
 
 __all__ = [
+    "BAND_METHODS",
+    "ENGINES",
     "KERNELS",
+    "RULES",
+    "SCORED_SELECTORS",
+    "SELECTORS",
     "Bands",
     "Caution",
     "Kernel",
