@@ -240,3 +240,40 @@ def test_one_se_picks_a_larger_bandwidth_within_one_se() -> None:
 def test_unsorted_x_is_refused() -> None:
     with pytest.raises(ValueError, match="ascending"):
         correlated_scores(np.array([1.0, 0.0, 2.0]), np.zeros(3), np.array([1.0]), _diag(0.5), kernel=KERNELS["gaussian"])
+
+
+def test_autocovariance_of_block_means_against_simulation() -> None:
+    # means of b consecutive AR(1) readings: closed-form sum against the empirical autocovariance
+    from estimators.serial import _aggregated_autocovariance
+
+    rng = np.random.default_rng(61)
+    phi, b = 0.8, 5
+    e = ar1(rng, 1_000_000, phi)
+    means = e.reshape(-1, b).mean(axis=1)
+    means = means - means.mean()
+    got = _aggregated_autocovariance(phi ** np.arange(60), b)
+    for k in range(3):
+        emp = float(np.dot(means[k:], means[: means.size - k])) / means.size
+        assert got[k] == pytest.approx(emp, abs=0.01)
+    assert _aggregated_autocovariance(np.array([1.0]), b)[0] == pytest.approx(1.0 / b)  # iid: variance / b
+
+
+def test_long_series_are_scored_on_means() -> None:
+    # above AGGREGATE_READINGS the choice stays close to the one on the readings themselves
+    from estimators import serial
+
+    rng = np.random.default_rng(62)
+    n = 6000
+    x = (np.arange(n) + 0.5) / n
+    y = trend(x) + 0.3 * ar1(rng, n, 0.6)
+    d = diagnose_noise(x, y)
+    grid = np.geomspace(0.005, 0.3, 16)
+    kern = KERNELS["gaussian"]
+    full = correlated_scores(x, y, grid, d, kernel=kern, criterion="leave_out")
+    old = serial.AGGREGATE_READINGS
+    try:
+        serial.AGGREGATE_READINGS = 1500
+        agg = correlated_scores(x, y, grid, d, kernel=kern, criterion="leave_out")
+    finally:
+        serial.AGGREGATE_READINGS = old
+    assert abs(np.log(agg.chosen / full.chosen)) <= np.log(grid[1] / grid[0]) * 2.01
