@@ -2,7 +2,7 @@
 
 ``M_ck(t) = sum_i q_ic K(u_i)^p u_i^k`` with ``u_i = (x_i - t) / h``, without an ``n`` by ``m`` matrix:
 tile-centred sums for compact kernels, a fast Gauss transform for the gaussian, linear binning and FFT
-for the binned path. Derivations, error bounds and references: ``docs/methods.md`` (moment sums).
+for the binned path. Derivations, error bounds and references: ``docs/methods.md`` (windowed moment sums).
 """
 
 from __future__ import annotations

@@ -1,6 +1,6 @@
 """Binned scoring of candidates: a dyadic hierarchy of grids and moment sums by FFT.
 
-Method notes: ``docs/methods.md`` (bandwidth selection, binned scoring).
+Method notes: ``docs/methods.md`` (bandwidth selection: scoring and large samples).
 """
 
 from __future__ import annotations

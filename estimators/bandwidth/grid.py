@@ -1,6 +1,6 @@
 """The candidate grid: geometric between a well-posed minimum and half the x range.
 
-Method notes: ``docs/methods.md`` (bandwidth selection, candidate grid).
+Method notes: ``docs/methods.md`` (bandwidth selection: candidates).
 """
 
 from __future__ import annotations

@@ -1,6 +1,6 @@
 """Direct plug-in bandwidth (Ruppert, Sheather and Wand 1995).
 
-Method notes: ``docs/methods.md`` (bandwidth selection, plug-in).
+Method notes: ``docs/methods.md`` (bandwidth selection: selectors, plugin).
 """
 
 from __future__ import annotations

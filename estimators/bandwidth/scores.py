@@ -1,6 +1,6 @@
 """Selection criteria (loocv, gcv, aicc), their per-point losses and standard errors.
 
-Method notes: ``docs/methods.md`` (bandwidth selection, criteria and rules).
+Method notes: ``docs/methods.md`` (bandwidth selection: selectors, rules).
 """
 
 from __future__ import annotations

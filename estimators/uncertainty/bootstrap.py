@@ -1,6 +1,6 @@
 """Bootstrap deviations ``D*(t) = sum_j l_j(t) e*_j``, drawn block by block, and the small-sample factor.
 
-Method notes: ``docs/methods.md`` (uncertainty, bootstrap).
+Method notes: ``docs/methods.md`` (uncertainty: methods, large data).
 """
 
 from __future__ import annotations

@@ -1,6 +1,6 @@
 """The noise variance as a function of x: constant, or a local linear fit chosen by GCV.
 
-Method notes: ``docs/methods.md`` (uncertainty, noise scale).
+Method notes: ``docs/methods.md`` (uncertainty: local noise scale).
 """
 
 from __future__ import annotations
@@ -41,7 +41,7 @@ class NoiseScale:
 
 
 def noise_scale(s: LocalPolynomial) -> NoiseScale:
-    """Choose between a constant and a local linear noise variance by GCV (see ``docs/methods.md``, local noise scale)."""
+    """Choose between a constant and a local linear noise variance by GCV (see ``docs/methods.md``, uncertainty: local noise scale)."""
     return s.memo("noise", lambda: _build_noise_scale(s, adjusted_residuals(s)))
 
 

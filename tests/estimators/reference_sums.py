@@ -2,7 +2,7 @@
 
 The compiled sweep of :mod:`estimators._compiled` is held to this form by the tests: each point's
 powers are taken about its own tile centre and a window is assembled from at most three tiles,
-re-centred by an exact binomial (or angle-addition) shift. See ``docs/methods.md`` (moment sums).
+re-centred by an exact binomial (or angle-addition) shift. See ``docs/methods.md`` (windowed moment sums).
 """
 
 from __future__ import annotations
