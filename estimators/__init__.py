@@ -3,10 +3,11 @@
 Pure numerics (numpy, scipy, compiled numba loops); no web, no I/O.
 """
 
+from .api import Smoother, fit
 from .bandwidth import RULES, SCORED_SELECTORS, SELECTORS, Selection, select_bandwidth
 from .cautions import Caution
 from .kernels import KERNELS, Kernel, convert_bandwidth
-from .local_poly import ENGINES, Smoother, fit
+from .local_poly import ENGINES
 from .uncertainty import METHODS as BAND_METHODS
 from .uncertainty import Bands
 

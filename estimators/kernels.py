@@ -1,27 +1,15 @@
-"""Kernel registry and kernel constants.
+"""Kernel registry and kernel constants (``R(K)``, ``mu2``, efficiency, canonical factor) and exact shapes.
 
-Every kernel is a symmetric probability density on ``[-1, 1]`` (``gaussian``:
-the real line) in its usual textbook scaling. Besides the function itself each
-kernel carries the constants that bandwidth theory needs and an exact
-description of its shape that the fast windowed sums in :mod:`estimators.sums`
-use.
-
-References
-----------
-.. [1] Silverman, B. W. (1986). *Density Estimation for Statistics and Data
-   Analysis*. Chapman & Hall. Table 3.1.
-.. [2] Wand, M. P. and Jones, M. C. (1995). *Kernel Smoothing*. Chapman &
-   Hall. Sections 2.7 and 2.8, Table B.1.
-.. [3] Marron, J. S. and Nolan, D. (1988). Canonical kernels for density
-   estimation. *Statistics & Probability Letters* 7, 195-199.
+Kernels are symmetric densities on ``[-1, 1]`` (gaussian: the real line) in their textbook scaling.
+References: ``docs/methods.md`` (kernels).
 """
 
 from __future__ import annotations
 
 import math
-from functools import cached_property, lru_cache
+from collections.abc import Callable
 from dataclasses import dataclass, field
-from typing import Callable
+from functools import cached_property, lru_cache
 
 import numpy as np
 from numpy.polynomial import polynomial as npoly
@@ -41,7 +29,7 @@ class Shape:
     in_abs: bool = False
     cosines: tuple[tuple[float, float], ...] = ()  # (amplitude, angular frequency)
 
-    def squared(self) -> "Shape":
+    def squared(self) -> Shape:
         """The shape of ``K(u)**2`` (used for variances; computed once per shape)."""
         return _squared(self)
 
@@ -114,7 +102,7 @@ class Kernel:
         Bandwidths ``h_1 / delta_0(K_1) = h_2 / delta_0(K_2)`` give the same
         amount of smoothing to first order.
         """
-        return (self.roughness / self.second_moment**2) ** 0.2
+        return float((self.roughness / self.second_moment**2) ** 0.2)
 
 
 def _compact(expr: Callable[[np.ndarray], np.ndarray]) -> Callable[[np.ndarray], np.ndarray]:

@@ -1,119 +1,21 @@
 """Kernel-weighted moment sums over sorted data: exact fast paths and the binned path.
 
-Every local polynomial quantity in Bandwise (fits, slopes, leverages,
-variances) is built from *windowed moment sums*
-
-.. math::  M_{c,k}(t) = \\sum_i q_{i,c}\\, K(u_i)^p\\, u_i^k, \\qquad u_i = (x_i - t) / h,
-
-for a few value columns ``q`` (weights, weights times ``y``, ...), orders
-``k`` and ``p`` in {1, 2}. This module computes them without ever forming an
-``n`` by ``m`` matrix.
-
-Compact kernels (``engine="exact"``)
-    Fast sum updating (Seifert, Brockmann, Engel & Gasser 1994; Fan & Marron
-    1994): on ``|u| <= 1`` every supported kernel is a polynomial in ``u`` or
-    ``|u|``, or a cosine, so ``K(u) u^k`` expands into powers (times a cosine)
-    of the data coordinate and the window sum becomes a difference of prefix
-    sums. The textbook version takes prefix sums of raw powers ``x^j``; with
-    epoch-millisecond ``x`` (about 1.7e12) the fourth powers carry ~1e49 and the
-    differences lose every digit. We use **tile-local centring** instead: the x
-    axis is cut into tiles slightly wider than ``h``, each point's powers are
-    taken about its own tile centre (so ``|v| <= 1/2``), and a window, which
-    meets at most three tiles, is assembled from three pieces re-centred by an
-    exact binomial (or angle-addition) shift. All terms then stay below
-    ``2**J`` times the result (``J`` the polynomial degree involved, at most 13
-    for fits), so the relative rounding error is about ``2**J * eps``,
-    independent of the location and scale of ``x``. That vectorised form
-    (``_compact_moments``) is the reference the tests hold the compiled sweep
-    to; the sweep used by default (:mod:`estimators._compiled`) slides the sums
-    over sorted queries about the centre of the query's tile and rewrites the
-    kernel about that centre by a Taylor shift, ``O(n + m)`` after sorting.
-
-Gaussian kernel (``engine="exact"``)
-    A fast Gauss transform (Greengard & Strain 1991) in one dimension. Sources
-    and targets are grouped into tiles of width ``h``; for a source tile at
-    offset ``D`` (in bandwidths) from a target tile, ``exp(-(D+s)^2/2)`` is
-    replaced on ``|s| <= 1`` (``s = v - w``, the two offsets from the tile
-    centres) by a polynomial of degree < ``N_TERMS``, which splits into powers
-    of ``v`` (tile moments) and of ``w`` (a local polynomial at the target
-    tile). The polynomial is the Taylor series about ``D`` (the Hermite
-    expansion of the original method) taken to 48 terms and economized to 24
-    with Chebyshev polynomials (Lanczos 1938): it is then within rounding of
-    the Chebyshev truncation of the kernel, whose error for this entire
-    function is at most ``2 M rho^-23 / (rho - 1)`` with ``M = exp(b^2/2)``
-    on the Bernstein ellipse of semi-minor axis ``b`` (Trefethen 2013, Theorem
-    8.2), about ``5e-19`` per unit of mass at ``rho = 9``; plain Taylor needs
-    30 terms for ``6e-17`` (Cramér's inequality). Tests hold the table and
-    its first two derivatives to the closed form and the end-to-end sums to
-    the dense formula. Far from the target the kernel is tiny and so are its
-    Chebyshev coefficients, so each tile offset ``D`` gets the shortest
-    polynomial whose error bounds (value and first four derivatives) stay
-    within the worst bound of the full length at any offset
-    (:func:`offset_terms`: 24 terms near, 8 at ten tiles); the error per unit
-    of mass is unchanged and the translations do about a quarter less work.
-    Sources farther than ``GAUSSIAN_CUTOFF = 10`` bandwidths
-    from a target tile are ignored (their relative weight is below
-    ``exp(-50) ~ 2e-22``); a point with no data within that distance is
-    undefined (NaN), like an empty window of a compact kernel. The transform's
-    error is absolute (a fraction of the mass in reach), so at a point farther
-    than ``_DIRECT_BEYOND = 6`` bandwidths from every data point, where all
-    weights are below ``exp(-18)``, the sums are taken term by term instead
-    (only beyond the ends of the data or inside a wide gap; cost per such
-    point: the sources in reach). The squared kernel's sums run on tiles of
-    ``h / sqrt 2`` with 16 tiles of reach (ten bandwidths, plus one tile).
-
-    Sums needed only at the data points (the squared kernel's sums behind the
-    variance term of the residual scale) use fewer terms, by local degree
-    (``DATA_POINT_TERMS``: 16, 18, 22 for degrees 0, 1, 2; 16 terms leave at
-    most ``2.3e-12`` of the mass in reach, measured against the closed form
-    over offsets 0-11). At a data point the sum holds the point's own term,
-    so a gap between data cannot make it small. Measured against the dense
-    smoother matrix (three designs, 200 points), the variance term is then
-    within ``5e-13`` relative for every degree, against ``2e-14`` with 24
-    terms; higher degrees need more terms because the fit combines higher
-    moments. Curves, bands and predictions at arbitrary points keep 24 terms.
-
-Binned path (``engine="binned"``)
-    Linear binning of the value columns onto a regular grid, discrete
-    convolution with the sampled kernel by FFT (Wand 1994; Fan & Marron 1994),
-    and cubic (Keys 1981) interpolation of the moment sums from the grid to the
-    query points. With grid spacing ``h / BINNED_POINTS_PER_BANDWIDTH`` the
-    measured error for the gaussian kernel is far below ``1e-6`` of the range
-    of ``y`` (see ``tests/test_sums.py``); compact kernels have kinks at the
-    window edges and are better served by the exact path.
-
-References
-----------
-.. [1] Seifert, B., Brockmann, M., Engel, J. and Gasser, T. (1994). Fast
-   algorithms for nonparametric curve estimation. *J. Comput. Graph. Statist.*
-   3, 192-213.
-.. [2] Fan, J. and Marron, J. S. (1994). Fast implementations of
-   nonparametric curve estimators. *J. Comput. Graph. Statist.* 3, 35-56.
-.. [3] Greengard, L. and Strain, J. (1991). The fast Gauss transform. *SIAM
-   J. Sci. Stat. Comput.* 12, 79-94.
-.. [4] Wand, M. P. (1994). Fast computation of multivariate kernel
-   estimators. *J. Comput. Graph. Statist.* 3, 433-445.
-.. [5] Keys, R. (1981). Cubic convolution interpolation for digital image
-   processing. *IEEE Trans. Acoust., Speech, Signal Process.* 29, 1153-1160.
-.. [6] Lanczos, C. (1938). Trigonometric interpolation of empirical and
-   analytical functions. *J. Math. Phys.* 17, 123-199.
-.. [7] Trefethen, L. N. (2013). *Approximation Theory and Approximation
-   Practice*. SIAM, Philadelphia.
+``M_ck(t) = sum_i q_ic K(u_i)^p u_i^k`` with ``u_i = (x_i - t) / h``, without an ``n`` by ``m`` matrix:
+tile-centred sums for compact kernels, a fast Gauss transform for the gaussian, linear binning and FFT
+for the binned path. Derivations, error bounds and references: ``docs/methods.md`` (windowed moment sums).
 """
 
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
-from functools import lru_cache
-from typing import Sequence
+from collections.abc import Callable, Sequence
+from functools import cache
+
 import numpy as np
 from scipy import fft as sp_fft
-from scipy.special import comb
 
+from . import _compiled  # compiled sweeps (their vectorised reference is in the tests)
 from .kernels import Kernel, Shape
-
-from . import _compiled  # compiled sweeps; _compact_moments below is their vectorised reference
 
 __all__ = [
     "GAUSSIAN_CUTOFF",
@@ -124,11 +26,9 @@ __all__ = [
 
 GAUSSIAN_CUTOFF = 10.0
 N_TERMS = 24
-#: Fast Gauss transform terms, by local degree, for the squared kernel's sums at the data points (see the module notes)
+#: Fast Gauss transform terms, by local degree, for the squared kernel's sums at the data points (see ``docs/methods.md``)
 DATA_POINT_TERMS = {0: 16, 1: 18, 2: 22}
 BINNED_POINTS_PER_BANDWIDTH = 256
-_TILE_STRETCH = 1.0 + 2.0**-10  # tiles a hair wider than h: a window meets at most 3 tiles
-_CHUNK = 16384
 
 
 # ---------------------------------------------------------------------------
@@ -171,166 +71,8 @@ def window_bounds(
 def window_counts(x: np.ndarray, points: np.ndarray, kernel: Kernel, bandwidth: float) -> np.ndarray:
     """Number of sorted data points carrying weight in each point's window."""
     lo, hi = window_bounds(x, points, kernel, bandwidth)
-    return np.maximum(hi - lo, 0)
-
-
-# ---------------------------------------------------------------------------
-# feature bases for the compact exact path
-# ---------------------------------------------------------------------------
-
-
-@dataclass(frozen=True)
-class _Basis:
-    """Functions of the tile-local coordinate whose window sums give the moments.
-
-    ``omega == 0``: powers ``v**j`` for ``j <= degree``.
-    ``omega > 0``: ``cos(omega v) v**j`` then ``sin(omega v) v**j``.
-    """
-
-    degree: int
-    omega: float = 0.0
-
-    @property
-    def size(self) -> int:
-        return (self.degree + 1) * (1 if self.omega == 0.0 else 2)
-
-    def features(self, v: np.ndarray, q: np.ndarray) -> np.ndarray:
-        out = np.empty((v.size, self.size))
-        if self.omega == 0.0:
-            col = q.copy()
-            for j in range(self.degree + 1):
-                out[:, j] = col
-                if j < self.degree:
-                    col *= v
-            return out
-        d1 = self.degree + 1
-        c = q * np.cos(self.omega * v)
-        s = q * np.sin(self.omega * v)
-        for j in range(d1):
-            out[:, j] = c
-            out[:, d1 + j] = s
-            if j < self.degree:
-                c *= v
-                s *= v
-        return out
-
-    def shift(self, delta: np.ndarray) -> np.ndarray:
-        """Matrices ``T`` with ``features(v + delta) = T @ features(v)``; shape (m, F, F)."""
-        delta = np.atleast_1d(np.asarray(delta, dtype=float))
-        d1 = self.degree + 1
-        binom = np.zeros((delta.size, d1, d1))
-        powers = np.ones((delta.size, d1))
-        for k in range(1, d1):
-            powers[:, k] = powers[:, k - 1] * delta
-        for big in range(d1):
-            for j in range(big + 1):
-                binom[:, big, j] = comb(big, j, exact=True) * powers[:, big - j]
-        if self.omega == 0.0:
-            return binom
-        cw = np.cos(self.omega * delta)[:, None, None]
-        sw = np.sin(self.omega * delta)[:, None, None]
-        out = np.empty((delta.size, 2 * d1, 2 * d1))
-        out[:, :d1, :d1] = binom * cw
-        out[:, :d1, d1:] = -binom * sw
-        out[:, d1:, :d1] = binom * sw
-        out[:, d1:, d1:] = binom * cw
-        return out
-
-
-def _blocks(shape: Shape, order: int) -> list[tuple[_Basis, np.ndarray, np.ndarray]]:
-    """Bases with linear maps from shifted features to moments ``k = 0..order``.
-
-    Returns ``(basis, right_map, left_map)``; ``*_map`` has shape
-    ``(order + 1, basis.size)`` and gives ``sum q K(u) u^k`` on the part of the
-    window with ``u >= 0`` (right) or ``u < 0`` (left).
-    """
-    blocks = []
-    if shape.poly:
-        deg_k = len(shape.poly) - 1
-        basis = _Basis(deg_k + order)
-        right = np.zeros((order + 1, basis.size))
-        left = np.zeros((order + 1, basis.size))
-        for k in range(order + 1):
-            for a, coef in enumerate(shape.poly):
-                right[k, a + k] += coef
-                left[k, a + k] += coef * ((-1.0) ** a if shape.in_abs else 1.0)
-        blocks.append((basis, right, left))
-    for amp, omega in shape.cosines:
-        basis = _Basis(order, omega)
-        m = np.zeros((order + 1, basis.size))
-        for k in range(order + 1):
-            m[k, k] = amp
-        blocks.append((basis, m, m))
-    return blocks
-
-
-# ---------------------------------------------------------------------------
-# compact kernels: tile-centred fast sum updating
-# ---------------------------------------------------------------------------
-
-
-def _compact_moments(
-    x: np.ndarray,
-    q: np.ndarray,
-    points: np.ndarray,
-    kernel: Kernel,
-    shape: Shape,
-    bandwidth: float,
-    order: int,
-) -> np.ndarray:
-    n, ncol = q.shape
-    m = points.size
-    out = np.zeros((m, ncol, order + 1))
-    if n == 0 or m == 0:
-        return out
-    h = float(bandwidth)
-    width = h * _TILE_STRETCH
-    stretch = width / h
-    origin = float(x[0])
-    rel = x - origin
-    tile = np.floor(rel / width)
-    v = (rel - (tile + 0.5) * width) / h
-
-    lo, hi = window_bounds(x, points, kernel, h)
-    empty = hi <= lo
-    last_tile = float(tile[-1])
-    b0 = np.clip(np.floor((points - origin) / width), -2.0, last_tile + 2.0)
-    delta0 = ((b0 + 0.5) * width - (points - origin)) / h
-    delta0[empty] = 0.0
-    s0 = np.searchsorted(tile, b0, side="left")
-    s1 = np.searchsorted(tile, b0 + 1.0, side="left")
-    if shape.in_abs:
-        mid = np.clip(np.searchsorted(x, points, side="left"), lo, hi)
-        halves = [("left", lo, mid), ("right", mid, hi)]
-    else:
-        halves = [("right", lo, hi)]
-
-    cuts = []
-    for side, a, b in halves:
-        p1 = np.clip(s0, a, b)
-        p2 = np.clip(s1, a, b)
-        cuts.append((side, np.stack([a, p1, p2, b])))
-
-    for basis, right_map, left_map in _blocks(shape, order):
-        t_minus = basis.shift(np.array([-stretch]))[0]
-        t_plus = basis.shift(np.array([stretch]))[0]
-        for c in range(ncol):
-            cum = np.empty((n + 1, basis.size))
-            cum[0] = 0.0
-            np.cumsum(basis.features(v, q[:, c]), axis=0, out=cum[1:])
-            for start in range(0, m, _CHUNK):
-                sl = slice(start, min(start + _CHUNK, m))
-                t_final = basis.shift(delta0[sl])
-                for side, idx in cuts:
-                    g = cum[idx[:, sl]]  # (4, chunk, F)
-                    piece_a = g[1] - g[0]
-                    piece_b = g[2] - g[1]
-                    piece_c = g[3] - g[2]
-                    local = piece_a @ t_minus.T + piece_b + piece_c @ t_plus.T
-                    shifted = np.einsum("mgf,mf->mg", t_final, local)
-                    kmap = left_map if side == "left" else right_map
-                    out[sl, c, :] += shifted @ kmap.T
-    return out
+    counts: np.ndarray = np.maximum(hi - lo, 0)
+    return counts
 
 
 # ---------------------------------------------------------------------------
@@ -529,7 +271,7 @@ def economized_kernel(offset: float, terms: int = N_TERMS) -> np.ndarray:
     back in powers of ``s`` (Lanczos economization): the cut changes the
     polynomial by at most the sum of the dropped coefficients on the interval,
     and the result is within rounding of the Chebyshev truncation of the
-    kernel (see the module notes for the bound).
+    kernel (see ``docs/methods.md`` for the bound).
     """
     power = np.polynomial.chebyshev.cheb2poly(_chebyshev_kernel(offset)[:terms])
     out = np.zeros(terms)
@@ -541,7 +283,7 @@ def economized_kernel(offset: float, terms: int = N_TERMS) -> np.ndarray:
 _DERIVATIVES = 4
 
 
-@lru_cache(maxsize=None)
+@cache
 def offset_terms(terms: int = N_TERMS, reach: int = _REACH) -> np.ndarray:
     """Polynomial length ``N_D <= terms`` used at each tile offset ``D = -reach .. reach``.
 
@@ -571,7 +313,7 @@ def offset_terms(terms: int = N_TERMS, reach: int = _REACH) -> np.ndarray:
     return out
 
 
-@lru_cache(maxsize=None)
+@cache
 def _translation_matrices(terms: int = N_TERMS, reach: int = _REACH) -> np.ndarray:
     """``A[k, j] = (-1)^k (j+k)! a_{j+k}(D) / k!`` (``j + k < N_D``, zero beyond) for every tile offset ``D``.
 
@@ -604,7 +346,7 @@ _translation_matrices(N_TERMS, _reach_in_tiles(2))  # the squared kernel's sums 
 del _terms
 
 
-@lru_cache(maxsize=None)
+@cache
 def _hermite_to_power(order: int) -> np.ndarray:
     """Matrix ``P`` with ``u^k = sum_j P[k, j] He_j(u)`` for ``k <= order`` (read-only, built once per order)."""
     p = np.zeros((order + 1, order + 1))
@@ -616,7 +358,7 @@ def _hermite_to_power(order: int) -> np.ndarray:
     return p
 
 
-@lru_cache(maxsize=None)
+@cache
 def _gauss_conversion(order: int, power: int) -> np.ndarray:
     """``conv[j, k]`` with ``sum q u^k K(u)^power = sum_j conv[j, k] (sum q He_j(u') f(u'))``, ``u' = sqrt(power) u``.
 
@@ -761,7 +503,10 @@ class MomentPlan:
     ) -> None:
         self.x, self.q = x, (q[:, None] if q.ndim == 1 else q)
         self.kernel, self.bandwidth, self.order, self.power = kernel, float(bandwidth), int(order), int(power)
-        self._evaluate = None
+        #: the binned or gaussian evaluation of the sums (window bounds separately); None for compact kernels
+        self._evaluate: Callable[[np.ndarray], np.ndarray] | None = None
+        #: compact kernels: sums and window bounds in one compiled sweep (:meth:`_compact`)
+        self._fused = False
         if engine == "binned":
             if x.size:
                 self._evaluate = _BinnedPlan(x, self.q, kernel, bandwidth, order, power, column_orders)
@@ -776,7 +521,7 @@ class MomentPlan:
             if column_orders is not None:
                 self.orders[:] = np.minimum(np.asarray(column_orders, dtype=np.int64), order)
             self.q = np.ascontiguousarray(self.q, dtype=float)
-            self._evaluate = self._compact
+            self._fused = True
 
     def _compact(self, points: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """Compiled sliding sweep for compact kernels: moments and window bounds in one pass."""
@@ -794,16 +539,16 @@ class MomentPlan:
 
     def sums(self, points: np.ndarray) -> np.ndarray:
         """The moment sums alone (no window bounds), shape ``(m, ncol, order + 1)``."""
-        if self._evaluate is None or points.size == 0 or self._evaluate == self._compact:
+        if self._evaluate is None or points.size == 0:
             return self(points)[0]
         return self._evaluate(points)
 
     def __call__(self, points: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         m = points.size
-        if self._evaluate is None or m == 0:
+        if m == 0 or (self._evaluate is None and not self._fused):
             zeros = np.zeros(m, dtype=np.int64)
             return np.zeros((m, self.q.shape[1], self.order + 1)), zeros, zeros.copy()
-        if self._evaluate == self._compact:
+        if self._evaluate is None:
             return self._compact(points)
         mom = self._evaluate(points)
         lo, hi = window_bounds(self.x, points, self.kernel, self.bandwidth, ascending=True)

@@ -43,7 +43,7 @@ import numpy as np
 
 from estimators import KERNELS, select_bandwidth
 from estimators.bandwidth import well_posed_minimum
-from estimators.local_poly import validate_sample
+from estimators.sample import validate_sample
 from estimators.sums import GAUSSIAN_CUTOFF
 
 from .machine import describe

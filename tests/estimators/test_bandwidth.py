@@ -19,9 +19,13 @@ import math
 import numpy as np
 import pytest
 
-import estimators.bandwidth as bw
+import estimators.bandwidth.binned as bw_binned
+import estimators.bandwidth.fits as bw_fits
+import estimators.bandwidth.grid as bw_grid
+import estimators.bandwidth.plugin as bw_plugin
 from estimators import KERNELS, Selection, convert_bandwidth, fit, select_bandwidth
-from estimators.local_poly import validate_sample
+from estimators.bandwidth.groups import TieGroups
+from estimators.sample import validate_sample
 from tests.bench.study_selection import CURVES, replicate
 
 from .dense_reference import dense_local_fit
@@ -185,8 +189,8 @@ def test_binned_scores_with_ties_weights_and_epoch_millisecond_x() -> None:
 
 def test_coarse_candidates_are_refitted_exactly_near_the_minimum(monkeypatch: pytest.MonkeyPatch) -> None:
     """A finest grid capped far too small: candidates below 16 nodes per bandwidth are 'coarse'."""
-    monkeypatch.setattr(bw, "BINNED_MAX_NODES", 257)
-    monkeypatch.setattr(bw, "BINNED_MIN_NODES", 65)
+    monkeypatch.setattr(bw_binned, "BINNED_MAX_NODES", 257)
+    monkeypatch.setattr(bw_binned, "BINNED_MIN_NODES", 65)
     x, y = _sine(4000, 9, sd=0.05)  # little noise: the best bandwidth is small
     exact = select_bandwidth(x, y, kernel="epanechnikov", scoring="exact", candidates=25)
     binned = select_bandwidth(x, y, kernel="epanechnikov", scoring="binned", candidates=25,
@@ -196,12 +200,12 @@ def test_coarse_candidates_are_refitted_exactly_near_the_minimum(monkeypatch: py
     assert binned.scores[best] == pytest.approx(exact.scores[best], rel=1e-12)  # refitted exactly
     # every coarse score that was kept obeys the documented error bound
     sample = validate_sample(x, y)
-    groups = bw._Groups(sample)
-    scorer = bw._BinnedScorer(sample, groups, KERNELS["epanechnikov"], 1, binned.candidates[0], binned.candidates[-1])
-    for h, sb, se in zip(binned.candidates, binned.scores, exact.scores):
+    groups = TieGroups(sample)
+    scorer = bw_binned.BinnedScorer(sample, groups, KERNELS["epanechnikov"], 1, binned.candidates[0], binned.candidates[-1])
+    for h, sb, se in zip(binned.candidates, binned.scores, exact.scores, strict=True):
         r = scorer.nodes_per_bandwidth(float(h))
-        if np.isfinite(sb) and 1.0 <= r < bw.BINNED_NODES_PER_BANDWIDTH:
-            assert abs(sb - se) <= bw.BINNED_ERROR_CONSTANT / r**2 * se
+        if np.isfinite(sb) and 1.0 <= r < bw_fits.BINNED_NODES_PER_BANDWIDTH:
+            assert abs(sb - se) <= bw_fits.BINNED_ERROR_CONSTANT / r**2 * se
 
 
 def test_large_sample_default_grid_stays_on_the_accurate_binned_grid() -> None:
@@ -211,7 +215,7 @@ def test_large_sample_default_grid_stays_on_the_accurate_binned_grid() -> None:
     y = np.sin(x / 4.0) + rng.normal(0.0, 0.3, n)
     sel = select_bandwidth(x, y)
     assert sel.scoring == "binned"
-    assert sel.candidates[0] >= bw._binned_floor(validate_sample(x, y)) * (1 - 1e-12)
+    assert sel.candidates[0] >= bw_binned.binned_floor(validate_sample(x, y)) * (1 - 1e-12)
     assert np.isfinite(sel.scores).all()
     # the GCV optimum of sin(x/4) with sd 0.3 at this n lies well inside the grid
     assert "selection_at_grid_edge" not in _codes(sel)
@@ -261,14 +265,14 @@ def test_rule_of_thumb_uses_the_interquartile_range_when_it_is_smaller() -> None
 
 def test_equivalent_kernel_constants() -> None:
     # local linear: K itself; R and mu2 of the gaussian and Epanechnikov (Silverman 1986, Table 3.1)
-    assert bw._equivalent_kernel("gaussian", 1, 0) == pytest.approx((1 / (2 * math.sqrt(math.pi)), 1.0), rel=1e-9)
-    assert bw._equivalent_kernel("epanechnikov", 1, 0) == pytest.approx((0.6, 0.2), rel=1e-9)
+    assert bw_plugin._equivalent_kernel("gaussian", 1, 0) == pytest.approx((1 / (2 * math.sqrt(math.pi)), 1.0), rel=1e-9)
+    assert bw_plugin._equivalent_kernel("epanechnikov", 1, 0) == pytest.approx((0.6, 0.2), rel=1e-9)
     # local cubic: the fourth-order gaussian kernel (3 - u^2) phi / 2 (Wand & Jones 1995, 2.8):
     # R = int (3 - u^2)^2 phi^2 / 4 = 27 / (32 sqrt(pi)), int u^4 K* = (3 * 3 - 15) / 2 = -3
-    assert bw._equivalent_kernel("gaussian", 3, 0) == pytest.approx((27 / (32 * math.sqrt(math.pi)), -3.0), rel=1e-9)
+    assert bw_plugin._equivalent_kernel("gaussian", 3, 0) == pytest.approx((27 / (32 * math.sqrt(math.pi)), -3.0), rel=1e-9)
     # local cubic, second derivative, by hand from the gaussian moments 1, 1, 3, 15:
     # K*_2 = (u^2 - 1) phi / 2, R = 3 / (32 sqrt(pi)), int u^4 K*_2 = (15 - 3) / 2 = 6
-    assert bw._equivalent_kernel("gaussian", 3, 2) == pytest.approx((3 / (32 * math.sqrt(math.pi)), 6.0), rel=1e-9)
+    assert bw_plugin._equivalent_kernel("gaussian", 3, 2) == pytest.approx((3 / (32 * math.sqrt(math.pi)), 6.0), rel=1e-9)
 
 
 def test_plugin_is_close_to_the_oracle_amise_bandwidth() -> None:
@@ -377,7 +381,7 @@ def test_default_minimum_keeps_every_window_well_posed() -> None:
             distinct = np.array([np.unique(x[np.abs(x - xi) < h]).size for xi in x])
             assert distinct.min() >= need
             # and not much more: at 1/1.25 of the minimum some window falls short
-            shorter = np.array([np.unique(x[np.abs(x - xi) < h / bw.WELL_POSED_MARGIN]).size for xi in x])
+            shorter = np.array([np.unique(x[np.abs(x - xi) < h / bw_grid.WELL_POSED_MARGIN]).size for xi in x])
             assert shorter.min() <= need
             assert np.isfinite(sel.scores).all()
 

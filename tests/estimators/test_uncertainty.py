@@ -19,18 +19,18 @@ import tracemalloc
 import numpy as np
 import pytest
 
-from estimators import Bands, KERNELS, fit
+from estimators import KERNELS, Bands, fit
 from estimators.uncertainty import (
-    _MAMMEN,
-    _coefficient_row,
-    _local_fit,
-    _propagate,
     bands,
     prediction_interval,
     slope_standard_error,
     slope_summary,
     standard_error,
 )
+from estimators.uncertainty.bootstrap import MAMMEN
+from estimators.uncertainty.local_fits import coefficient_row, local_fit
+
+from .reference_bootstrap import propagate
 
 
 def _dense_weights(x: np.ndarray, w: np.ndarray, t: np.ndarray, kernel: str, h: float, degree: int) -> np.ndarray:
@@ -151,7 +151,7 @@ def test_binned_wild_bootstrap_se_matches_robust_analytic_se(multiplier: str) ->
 
 
 def test_mammen_weights_have_published_moments() -> None:
-    low, high, p_low = _MAMMEN
+    low, high, p_low = MAMMEN
     moments = [p_low * low**k + (1 - p_low) * high**k for k in (1, 2, 3)]
     np.testing.assert_allclose(moments, [0.0, 1.0, 1.0], atol=1e-12)
 
@@ -164,11 +164,11 @@ def test_binned_errors_match_exact_weights(kernel: str) -> None:
     y = np.sin(x / 4) + rng.normal(0, 0.3, x.size)
     s = fit(x, y, kernel=kernel, bandwidth=1.5)
     t = np.sort(np.concatenate([rng.uniform(-1, 101, 40), [0.0, 100.0]]))
-    sol = _local_fit(s, t, 2)
-    a = _coefficient_row(sol, 0, s.bandwidth)
+    sol = local_fit(s, t, 2)
+    a = coefficient_row(sol, 0, s.bandwidth)
     errors = rng.standard_normal((s.n_used, 6)) * (0.2 + 0.1 * np.sin(s.sample.xs))[:, None]
-    exact = _propagate(s, t, a, errors, "exact")
-    binned = _propagate(s, t, a, errors, "binned")
+    exact = propagate(s, t, a, errors, "exact")
+    binned = propagate(s, t, a, errors, "binned")
     ratio = (binned**2).sum(axis=1) / (exact**2).sum(axis=1)
     assert np.max(np.abs(ratio - 1.0)) < 5e-3
 
@@ -422,7 +422,7 @@ def test_points_that_alone_determine_their_fit_are_left_out_of_the_noise_scale()
     # weight in the others' fits; the constant noise variance is the mean of r_j^2 / d_j over the
     # other points only, d_j = 1 - 2 L_jj + sum_k L_jk^2 from the explicit local linear smoother
     # matrix e1' (X'KX)^-1 X'K (Fan & Gijbels 1996, eq. 3.4) of those points (unit weights).
-    from estimators.uncertainty import _noise_scale
+    from estimators.uncertainty.noise import noise_scale
 
     rng = np.random.default_rng(8)
     x = np.sort(rng.uniform(0.0, 5.0, 9))  # fewer than 10 informative points: the constant scale is used
@@ -437,6 +437,6 @@ def test_points_that_alone_determine_their_fit_are_left_out_of_the_noise_scale()
         big_l[i] = np.linalg.solve(design.T @ (k[:, None] * design), design.T * k)[0]
     d = 1.0 - 2.0 * np.diag(big_l) + np.sum(big_l**2, axis=1)
     r = y - big_l @ y
-    noise = _noise_scale(s)
+    noise = noise_scale(s)
     assert noise.kind == "constant"
     assert noise.constant == pytest.approx(np.mean(r**2 / d), rel=1e-9)
