@@ -31,7 +31,7 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from pydantic import ValidationError
 
-from service.models import KERNEL_NAMES, SELECTOR_NAMES, BandwidthRequest, SmoothRequest
+from service.contract.models import KERNEL_NAMES, SELECTOR_NAMES, BandwidthRequest, SmoothRequest
 from tests.service.conftest import Harness
 
 from .figures import record

@@ -44,7 +44,7 @@ from schemathesis import GenerationMode
 from schemathesis.python import asgi
 
 from service.app import create_app
-from service.settings import Settings
+from service.runtime.settings import Settings
 
 from .figures import record
 

@@ -8,7 +8,7 @@ import numpy as np
 
 import estimators
 from estimators.demo import cold_store, parcel_depot
-from service.models import BandwidthResponse, BatchResponse
+from service.contract.models import BandwidthResponse, BatchResponse
 
 from .conftest import Harness
 

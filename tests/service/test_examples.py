@@ -16,7 +16,7 @@ from typing import Any
 
 import pytest
 
-from service.examples import Example, load_examples
+from service.http.examples import Example, load_examples
 
 from .conftest import Harness
 

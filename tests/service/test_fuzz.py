@@ -18,7 +18,7 @@ import schemathesis
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from service.models import KERNEL_NAMES, SELECTOR_NAMES, BandwidthResponse, BatchResponse, SmoothResponse
+from service.contract.models import KERNEL_NAMES, SELECTOR_NAMES, BandwidthResponse, BatchResponse, SmoothResponse
 
 from .conftest import Harness
 

@@ -10,7 +10,7 @@ from typing import Any
 
 import pytest
 
-from service.settings import MIB, Settings
+from service.runtime.settings import MIB, Settings
 
 from .conftest import Harness, problem_ok
 

@@ -11,8 +11,8 @@ import httpx
 import pytest
 from fastapi import Request
 
-from service.jobs import Job
-from service.logs import AccessLogWriter, JsonFormatter
+from service.contract.jobs import Job
+from service.runtime.logs import AccessLogWriter, JsonFormatter
 
 from .conftest import Harness, problem_ok
 

@@ -18,7 +18,7 @@ import pytest
 
 import estimators
 from estimators.demo import cold_store, parcel_depot
-from service.models import KERNEL_NAMES, SCORED_SELECTORS, SmoothResponse
+from service.contract.models import KERNEL_NAMES, SCORED_SELECTORS, SmoothResponse
 
 from .conftest import Harness
 
@@ -104,10 +104,11 @@ def test_selectors_and_rules(api: Harness, selector: str, rule: str) -> None:
 
 
 def test_scored_selectors_match_estimators() -> None:
-    from estimators.bandwidth import SCORED_SELECTORS as NUMERICS_SCORED, SELECTORS
+    from estimators.bandwidth import SCORED_SELECTORS as NUMERICS_SCORED
+    from estimators.bandwidth import SELECTORS
 
     assert tuple(SCORED_SELECTORS) == tuple(NUMERICS_SCORED)
-    from service.models import SELECTOR_NAMES
+    from service.contract.models import SELECTOR_NAMES
 
     assert tuple(SELECTOR_NAMES) == tuple(SELECTORS)
 

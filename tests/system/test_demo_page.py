@@ -27,7 +27,7 @@ import re
 import subprocess
 import sys
 from collections.abc import Iterator
-from datetime import datetime, timezone
+from datetime import UTC, datetime
 from pathlib import Path
 from typing import Any
 from urllib.parse import urljoin
@@ -436,6 +436,6 @@ def test_epoch_milliseconds_show_as_dates(tab: Page) -> None:
         value = (x - bx) / ax
         midnight = round(value / day_ms) * day_ms
         assert abs(value - midnight) < 60_000, (text, value)  # ticks fall on whole UTC days
-        when = datetime.fromtimestamp(midnight / 1000, tz=timezone.utc)
+        when = datetime.fromtimestamp(midnight / 1000, tz=UTC)
         assert text == f"{when.day} {when.strftime('%b')}", (text, when.isoformat())
     assert "UTC" in " ".join(tab.page.eval_on_selector_all("#main-chart .axis-title", "els => els.map(e => e.textContent)"))

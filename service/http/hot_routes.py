@@ -19,8 +19,8 @@ from starlette.responses import Response
 from starlette.routing import BaseRoute
 from starlette.types import ASGIApp, Receive, Scope, Send
 
-from .core import Service
-from .errors import ProblemError
+from service.contract.errors import ProblemError
+from service.http.core import Service
 
 HOT_KINDS = {"/v1/smooth": "smooth", "/v1/smooth/batch": "batch", "/v1/bandwidth": "bandwidth"}
 

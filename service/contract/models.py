@@ -4,7 +4,7 @@ Requests are strict: unknown fields are errors (``extra="forbid"``), numbers
 must be finite JSON numbers (``NaN``/``Infinity`` tokens and literals that
 overflow a double are rejected), strings are never coerced to numbers.
 Size limits come from the settings and are passed in as the validation
-context ``{"limits": {...}}`` (see :meth:`service.settings.Settings.limits`).
+context ``{"limits": {...}}`` (see :meth:`service.runtime.settings.Settings.limits`).
 
 Response models document the answers in the OpenAPI schema; the handlers
 build plain dicts of the same shape for speed, and the tests check the two
@@ -14,7 +14,7 @@ agree.
 from __future__ import annotations
 
 import math
-from typing import Annotated, Any, Literal, Union
+from typing import Annotated, Any, Literal
 
 from pydantic import (
     BaseModel,
@@ -59,7 +59,7 @@ def _bandwidth(value: Any) -> float | str:
 
 
 Bandwidth = Annotated[
-    Union[float, Literal["auto"]],
+    float | Literal["auto"],
     PlainValidator(_bandwidth),
     WithJsonSchema(
         {
@@ -320,7 +320,7 @@ class ProblemSlot(_Out):
 class BatchResponse(_Out):
     """One slot per series, in the order given."""
 
-    results: list[Union[SmoothResponse, ProblemSlot]]
+    results: list[SmoothResponse | ProblemSlot]
 
 
 class KernelOut(_Out):

@@ -8,9 +8,9 @@ from fastapi import FastAPI
 from fastapi.openapi.utils import get_openapi
 from pydantic import BaseModel
 
-from .errors import PROBLEM_MEDIA_TYPE, PROBLEM_TYPES
-from .examples import load_examples
-from .models import BandwidthRequest, BatchRequest, SmoothRequest
+from service.contract.errors import PROBLEM_MEDIA_TYPE, PROBLEM_TYPES
+from service.contract.models import BandwidthRequest, BatchRequest, SmoothRequest
+from service.http.examples import load_examples
 
 REQUEST_MODELS: dict[str, type[BaseModel]] = {
     "/v1/smooth": SmoothRequest,

@@ -13,7 +13,7 @@
 have the same methods and give the same results.  Both are built on httpx and
 are context managers.
 
-Results are the service's own response models (:mod:`service.models`), so a
+Results are the service's own response models (:mod:`service.contract.models`), so a
 result has exactly the fields of the JSON contract; the subclasses here only
 add ``arrays()`` helpers and the ``request_id`` of the answer.  Fields the
 service adds in a later version are ignored rather than rejected.
@@ -52,7 +52,7 @@ import time
 import uuid
 from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass
-from datetime import datetime, timezone
+from datetime import UTC, datetime, timezone
 from typing import Any, TypeVar, Union
 
 import httpx
@@ -60,9 +60,9 @@ import numpy as np
 import orjson
 from pydantic import BaseModel, PrivateAttr, ValidationError
 
-from . import __version__
-from .errors import field_errors
-from .models import (
+from service import __version__
+from service.contract.errors import field_errors
+from service.contract.models import (
     BandwidthOut,
     BandwidthRequest,
     BandwidthResponse,
@@ -197,7 +197,7 @@ class _Answer(BaseModel):
 
 
 class CurveResult(CurveOut):
-    """:class:`service.models.CurveOut` with a numpy helper."""
+    """:class:`service.contract.models.CurveOut` with a numpy helper."""
 
     def arrays(self) -> CurveArrays:
         """The curve as float arrays (NaN where the estimate or band is null)."""
@@ -205,7 +205,7 @@ class CurveResult(CurveOut):
 
 
 class FittedResult(FittedOut):
-    """:class:`service.models.FittedOut` with a numpy helper."""
+    """:class:`service.contract.models.FittedOut` with a numpy helper."""
 
     def arrays(self) -> FittedArrays:
         """Fitted values and residuals as float arrays."""
@@ -213,7 +213,7 @@ class FittedResult(FittedOut):
 
 
 class SelectionResult(BandwidthOut):
-    """:class:`service.models.BandwidthOut` with a numpy helper."""
+    """:class:`service.contract.models.BandwidthOut` with a numpy helper."""
 
     def arrays(self) -> SelectionArrays | None:
         """Candidates and scores as float arrays; None when the bandwidth was given, not selected."""
@@ -223,7 +223,7 @@ class SelectionResult(BandwidthOut):
 
 
 class SmoothResult(SmoothResponse, _Answer):
-    """Answer of ``POST /v1/smooth``: a :class:`service.models.SmoothResponse`.
+    """Answer of ``POST /v1/smooth``: a :class:`service.contract.models.SmoothResponse`.
 
     ``result.bandwidth.value``, ``result.curve.estimate``, ``result.predictions[0].extrapolated``,
     ``result.diagnostics.effective_df`` and ``result.warnings`` are the fields of
@@ -260,13 +260,13 @@ class SmoothResult(SmoothResponse, _Answer):
 
 
 class BandwidthResult(BandwidthResponse, _Answer):
-    """Answer of ``POST /v1/bandwidth``: a :class:`service.models.BandwidthResponse`."""
+    """Answer of ``POST /v1/bandwidth``: a :class:`service.contract.models.BandwidthResponse`."""
 
     bandwidth: SelectionResult
 
 
 class KernelsResult(KernelsResponse, _Answer):
-    """Answer of ``GET /v1/kernels``: a :class:`service.models.KernelsResponse`."""
+    """Answer of ``GET /v1/kernels``: a :class:`service.contract.models.KernelsResponse`."""
 
     def by_name(self) -> dict[str, KernelOut]:
         """The kernels keyed by name."""
@@ -276,11 +276,11 @@ class KernelsResult(KernelsResponse, _Answer):
 class BatchResult(BatchResponse, _Answer):
     """Answer of ``POST /v1/smooth/batch``: one slot per series, in order.
 
-    A slot is a :class:`SmoothResult`, or a :class:`service.models.ProblemSlot`
+    A slot is a :class:`SmoothResult`, or a :class:`service.contract.models.ProblemSlot`
     when that series alone failed; :meth:`errors` turns those into exceptions.
     """
 
-    results: list[Union[SmoothResult, ProblemSlot]]
+    results: list[SmoothResult | ProblemSlot]
 
     @property
     def ok(self) -> bool:
@@ -608,8 +608,8 @@ def parse_retry_after(value: str | None, now: datetime | None = None) -> float |
     if when is None:
         return None
     if when.tzinfo is None:
-        when = when.replace(tzinfo=timezone.utc)
-    current = now if now is not None else datetime.now(timezone.utc)
+        when = when.replace(tzinfo=UTC)
+    current = now if now is not None else datetime.now(UTC)
     return max(0.0, (when - current).total_seconds())
 
 

@@ -22,10 +22,9 @@ from pydantic import ValidationError
 import estimators
 from estimators import KERNELS, fit, select_bandwidth
 from estimators.demo import DEMOS
-
-from .errors import PROBLEM_MEDIA_TYPE, ProblemError, field_errors, problem_bytes, problem_document
-from .jobs import Job, Outcome
-from .models import BandsSpec, BandwidthRequest, BatchEnvelope, SmoothRequest
+from service.contract.errors import PROBLEM_MEDIA_TYPE, ProblemError, field_errors, problem_bytes, problem_document
+from service.contract.jobs import Job, Outcome
+from service.contract.models import BandsSpec, BandwidthRequest, BatchEnvelope, SmoothRequest
 
 log = logging.getLogger("bandwise.worker")
 
