@@ -61,7 +61,8 @@ import orjson
 from pydantic import BaseModel, PrivateAttr, ValidationError
 
 from service import __version__
-from service.contract.errors import field_errors
+from service.contract.errors import REASON_PHRASES
+from service.contract.field_errors import RENAMED_FIELDS, field_errors
 from service.contract.models import (
     BandwidthOut,
     BandwidthRequest,
@@ -456,14 +457,13 @@ class UnexpectedResponse(BandwiseError):
     hint = "Check that base_url points at a Bandwise service."
 
 
-_TITLES = {400: "Malformed request", 401: "Unauthorized", 403: "Forbidden", 404: "Not found", 413: "Request body too large", 422: "Invalid request", 429: "Too many requests", 500: "Internal error", 502: "Bad gateway", 503: "Service unavailable", 504: "Gateway timeout"}
 
 
 def type_title(status: int | None) -> str:
     """A short title for an HTTP status (used when the answer carries no problem document)."""
     if status is None:
         return ""
-    return _TITLES.get(status, f"HTTP {status}")
+    return REASON_PHRASES.get(status, f"HTTP {status}")
 
 
 def _error_class(status: int, slug: str) -> type[BandwiseError]:
@@ -728,22 +728,22 @@ def _numbers(values: Any, name: str, errors: list[dict[str, str]]) -> np.ndarray
         errors.append({"field": name, "message": message, "type": kind})
 
     if values is None or isinstance(values, (str, bytes, Mapping)):
-        fail(f"must be a list or array of numbers, got {type(values).__name__}", "list_type")
+        fail(f"must be a list or array of numbers, got {type(values).__name__}", "wrong_type")
         return None
     try:
         array = np.asarray(values)
     except (ValueError, TypeError):
-        fail("must be a flat list of numbers", "list_type")
+        fail("must be a flat list of numbers", "wrong_type")
         return None
     if array.ndim != 1:
-        fail(f"must be one-dimensional, got shape {array.shape}", "list_type")
+        fail(f"must be one-dimensional, got shape {array.shape}", "wrong_type")
         return None
     if array.size == 0:
         fail("is empty: at least 2 points are needed", "too_short")
         return None
     if array.dtype.kind not in "iuf":
         bad = next((i for i, v in enumerate(array.tolist()) if isinstance(v, bool) or not isinstance(v, (int, float))), 0)
-        fail(f"must hold numbers only; {name}[{bad}] is {array.tolist()[bad]!r}", "float_type")
+        fail(f"must hold numbers only; {name}[{bad}] is {array.tolist()[bad]!r}", "wrong_type")
         return None
     array = np.ascontiguousarray(array, dtype=np.float64)
     finite = np.isfinite(array)
@@ -752,7 +752,7 @@ def _numbers(values: Any, name: str, errors: list[dict[str, str]]) -> np.ndarray
         fail(
             f"holds {_plural(count, 'non-finite value')} (NaN or infinity), the first at index {_first(~finite)}; "
             "drop or fill those points before sending",
-            "finite_number",
+            "not_finite",
         )
         return None
     return array
@@ -774,7 +774,7 @@ def _check_options(options: Mapping[str, Any], model: type[BaseModel], prefix: s
         model.model_validate(probe)
     except ValidationError as exc:
         for item in field_errors(exc.errors(include_url=False, include_input=False), prefix):
-            if item["type"] == "extra_forbidden":
+            if item["type"] == "unknown_field" and item["field"].rsplit(".", 1)[-1] not in RENAMED_FIELDS:
                 item["message"] = _unknown_option_message(item["field"].rsplit(".", 1)[-1], model)
             errors.append(item)
 
@@ -796,14 +796,14 @@ def _series_body(x: Any, y: Any, options: Mapping[str, Any], model: type[BaseMod
     if xa is not None and xa.size < 2:
         errors.append({"field": name("x"), "message": f"at least 2 points are needed, got {xa.size}", "type": "too_short"})
     if xa is not None and ya is not None and ya.size != xa.size:
-        errors.append({"field": name("y"), "message": f"y has {ya.size} values but x has {xa.size}", "type": "value_error"})
+        errors.append({"field": name("y"), "message": f"y has {ya.size} values but x has {xa.size}", "type": "invalid"})
     if wa is not None:
         if xa is not None and wa.size != xa.size:
-            errors.append({"field": name("weights"), "message": f"weights has {wa.size} values but x has {xa.size}", "type": "value_error"})
+            errors.append({"field": name("weights"), "message": f"weights has {wa.size} values but x has {xa.size}", "type": "invalid"})
         elif (wa < 0).any():
-            errors.append({"field": name("weights"), "message": f"weights must be >= 0; {name('weights')}[{_first(wa < 0)}] is {wa[_first(wa < 0)]:g}", "type": "greater_than_equal"})
+            errors.append({"field": name("weights"), "message": f"weights must be >= 0; {name('weights')}[{_first(wa < 0)}] is {wa[_first(wa < 0)]:g}", "type": "too_small"})
         elif not (wa > 0).any():
-            errors.append({"field": name("weights"), "message": "at least one weight must be > 0", "type": "value_error"})
+            errors.append({"field": name("weights"), "message": "at least one weight must be > 0", "type": "invalid"})
     plain = _to_json_ready(options)
     if validate:
         _check_options(plain, model, prefix, errors, weights is not None)
@@ -818,7 +818,7 @@ def _series_body(x: Any, y: Any, options: Mapping[str, Any], model: type[BaseMod
 
 def _refuse(errors: list[dict[str, str]], what: str) -> ValidationFailed:
     items = [FieldErrorOut(**e) for e in errors]
-    return ValidationFailed(f"the {what} has invalid fields and was not sent", title="Invalid request", type="/problems/validation-error", errors=items)
+    return ValidationFailed(f"the {what} has invalid fields and was not sent", title=REASON_PHRASES[422], type="/problems/validation-error", errors=items)
 
 
 @dataclass(frozen=True)
@@ -967,12 +967,12 @@ class _ClientBase:
         for index, item in enumerate(series):
             prefix = f"series[{index}]"
             if not isinstance(item, Mapping):
-                errors.append({"field": prefix, "message": f"must be a mapping with x, y and options, got {type(item).__name__}", "type": "dict_type"})
+                errors.append({"field": prefix, "message": f"must be a mapping with x, y and options, got {type(item).__name__}", "type": "wrong_type"})
                 continue
             options = {k: v for k, v in item.items() if k not in ("x", "y")}
             for key in ("x", "y"):
                 if key not in item:
-                    errors.append({"field": f"{prefix}.{key}", "message": "Field required", "type": "missing"})
+                    errors.append({"field": f"{prefix}.{key}", "message": "this field is required; add it.", "type": "missing"})
             if "x" in item and "y" in item:
                 bodies.append(_series_body(item["x"], item["y"], options, SmoothRequest, prefix, errors, self.validate))
         if not bodies and not errors:
@@ -1068,7 +1068,7 @@ class BandwiseClient(_ClientBase):
             All optional; the service's defaults apply to what is not given:
             ``weights`` (array >= 0), ``kernel`` ("gaussian"), ``degree``
             (0, 1 or 2; default 1), ``bandwidth`` (number > 0 or "auto"),
-            ``selector`` ("gcv"), ``rule`` ("min" or "one_se"), ``candidates``,
+            ``selector`` ("gcv"), ``rule`` ("min" or "one_se"), ``candidate_count``,
             ``bandwidth_min``, ``bandwidth_max``, ``engine``, ``curve``
             (``{"points": n}`` or ``{"at": [...]}``), ``predict_at`` (array),
             ``bands`` (``{"method", "level", "replicates", "seed",
@@ -1102,7 +1102,7 @@ class BandwiseClient(_ClientBase):
         """Select a bandwidth only (``POST /v1/bandwidth``), with every candidate's score.
 
         Options are the data and selection options of :meth:`smooth`: ``weights``,
-        ``kernel``, ``degree``, ``selector``, ``rule``, ``candidates``,
+        ``kernel``, ``degree``, ``selector``, ``rule``, ``candidate_count``,
         ``bandwidth_min``, ``bandwidth_max``.  Automatic bandwidths can be
         implausible: look at ``result.bandwidth.scores`` and ``result.warnings``.
         """

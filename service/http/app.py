@@ -8,7 +8,6 @@ from __future__ import annotations
 import logging
 from collections.abc import AsyncIterator
 from contextlib import asynccontextmanager
-from http import HTTPStatus
 from typing import Any
 
 import orjson
@@ -21,7 +20,8 @@ from starlette.middleware.cors import CORSMiddleware
 from starlette.staticfiles import StaticFiles
 
 from service import __version__
-from service.contract.errors import PROBLEM_MEDIA_TYPE, ProblemError, field_errors, problem_document
+from service.contract.errors import PROBLEM_MEDIA_TYPE, STATUS_PROBLEMS, ProblemError, problem_document, reason_phrase
+from service.contract.field_errors import field_errors
 from service.contract.jobs import WorkerEntry
 from service.http.core import Service
 from service.http.docs_text import API_DESCRIPTION
@@ -35,9 +35,6 @@ from service.runtime.logs import flush_access_log
 from service.runtime.settings import Settings
 
 log = logging.getLogger("bandwise.app")
-
-_STATUS_SLUGS = {400: "malformed-request", 401: "unauthorized", 404: "not-found", 405: "method-not-allowed", 413: "payload-too-large", 415: "unsupported-media-type", 422: "validation-error", 429: "rate-limited", 500: "internal-error"}
-
 
 def _problem_response(request: Request, status: int, document: dict[str, Any], headers: dict[str, str] | None = None) -> Response:
     request.state.problem = str(document.get("type", "")).removeprefix("/problems/")
@@ -54,8 +51,8 @@ async def _on_problem(request: Request, exc: Exception) -> Response:
 
 async def _on_http_error(request: Request, exc: Exception) -> Response:
     assert isinstance(exc, StarletteHTTPException)
-    slug = _STATUS_SLUGS.get(exc.status_code)
-    detail = exc.detail if isinstance(exc.detail, str) else HTTPStatus(exc.status_code).phrase
+    slug = STATUS_PROBLEMS.get(exc.status_code)
+    detail = exc.detail if isinstance(exc.detail, str) else reason_phrase(exc.status_code)
     if exc.status_code == 404:
         detail = f"No resource at {request.url.path}. GET /docs lists the API."
     elif exc.status_code == 405:
@@ -63,7 +60,7 @@ async def _on_http_error(request: Request, exc: Exception) -> Response:
     if slug is not None:
         doc = problem_document(slug, detail, instance=request.url.path, request_id=request_id_of(request.scope))
     else:
-        doc = {"type": "about:blank", "title": HTTPStatus(exc.status_code).phrase, "status": exc.status_code, "detail": detail, "instance": request.url.path, "request_id": request_id_of(request.scope)}
+        doc = {"type": "about:blank", "title": reason_phrase(exc.status_code), "status": exc.status_code, "detail": detail, "instance": request.url.path, "request_id": request_id_of(request.scope)}
     return _problem_response(request, exc.status_code, doc, dict(exc.headers or {}))
 
 
@@ -80,7 +77,7 @@ class ProblemCORSMiddleware(CORSMiddleware):
         response = super().preflight_response(request_headers)
         if response.status_code == 400:
             detail = response.body.decode("utf-8", "replace") + " (not in BANDWISE_CORS_ORIGINS or not an allowed method/header)."
-            body = orjson.dumps({"type": "/problems/malformed-request", "title": "CORS preflight refused", "status": 400, "detail": detail})
+            body = orjson.dumps({"type": "/problems/malformed-request", "title": reason_phrase(400), "status": 400, "detail": "CORS preflight refused: " + detail})
             headers = {k: v for k, v in response.headers.items() if k.lower() not in ("content-length", "content-type")}
             return Response(body, status_code=400, media_type=PROBLEM_MEDIA_TYPE, headers=headers)
         return response

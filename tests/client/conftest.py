@@ -31,8 +31,8 @@ from typing import Any, TypeVar
 import httpx
 import pytest
 
-from service.client import AsyncBandwiseClient, BandwiseClient, RetryPolicy
 from service.app import create_app
+from service.client import AsyncBandwiseClient, BandwiseClient, RetryPolicy
 from service.runtime.settings import Settings
 
 T = TypeVar("T")

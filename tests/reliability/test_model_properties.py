@@ -106,7 +106,7 @@ def data_fields(draw: st.DrawFn, clean: bool | None = None) -> dict[str, Any]:
     if draw(st.integers(0, 4)) == 0:
         body["rule"] = draw(pick(clean, ["min", "one_se"], ["max"]))
     if draw(st.integers(0, 4)) == 0:
-        body["candidates"] = draw(st.integers(min_value=2 if clean else 0, max_value=LIMITS["max_candidates"] + (0 if clean else 8)))
+        body["candidate_count"] = draw(st.integers(min_value=2 if clean else 0, max_value=LIMITS["max_candidates"] + (0 if clean else 8)))
     if draw(st.integers(0, 5)) == 0:
         body["bandwidth_min"] = draw(st.floats(min_value=1e-3 if clean else -1.0, max_value=50.0, allow_nan=False))
     if draw(st.integers(0, 5)) == 0:

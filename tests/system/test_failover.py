@@ -87,7 +87,7 @@ def long_request() -> dict[str, Any]:
         "engine": "exact",
         "bandwidth": "auto",
         "selector": "loocv",
-        "candidates": 200,
+        "candidate_count": 200,
         "curve": {"points": 2000},
     }
 
