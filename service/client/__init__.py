@@ -52,8 +52,8 @@ import time
 import uuid
 from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass
-from datetime import UTC, datetime, timezone
-from typing import Any, TypeVar, Union
+from datetime import UTC, datetime
+from typing import Any, TypeVar
 
 import httpx
 import numpy as np
@@ -105,7 +105,7 @@ __all__ = [
 
 log = logging.getLogger("bandwise.client")
 
-ArrayLike = Union[Sequence[float], np.ndarray]
+ArrayLike = Sequence[float] | np.ndarray
 DEFAULT_TIMEOUT = httpx.Timeout(60.0, connect=5.0)
 USER_AGENT = f"bandwise-client/{__version__}"
 
@@ -281,7 +281,7 @@ class BatchResult(BatchResponse, _Answer):
     when that series alone failed; :meth:`errors` turns those into exceptions.
     """
 
-    results: list[SmoothResult | ProblemSlot]
+    results: Sequence[SmoothResult | ProblemSlot]
 
     @property
     def ok(self) -> bool:

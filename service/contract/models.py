@@ -14,6 +14,7 @@ agree.
 from __future__ import annotations
 
 import math
+from collections.abc import Sequence
 from typing import TYPE_CHECKING, Annotated, Any, Literal
 
 from pydantic import (
@@ -101,11 +102,11 @@ class CurveSpec(_Strict):
             raise FieldProblem("invalid", 'give either "points" or "at", not both')
         limit = _limits(info).get("max_curve_points")
         if self.at is not None and len(self.at) == 0:
-            raise FieldProblem("too_short", '"at" must hold at least one value', "at")
+            raise FieldProblem("too_short", '"at" must hold at least one value')
         count = self.points if self.points is not None else (len(self.at) if self.at is not None else 0)
         if limit is not None and count > limit:
-            which = "points" if self.points is not None else "at"
-            raise FieldProblem("too_large" if which == "points" else "too_long", f"at most {limit} curve points are allowed (BANDWISE_MAX_CURVE_POINTS), got {count}", which)
+            code = "too_large" if self.points is not None else "too_long"
+            raise FieldProblem(code, f"at most {limit} curve points are allowed (BANDWISE_MAX_CURVE_POINTS), got {count}")
         return self
 
 
@@ -122,7 +123,7 @@ class BandsSpec(_Strict):
     def _check(self, info: ValidationInfo) -> BandsSpec:
         limit = _limits(info).get("max_replicates")
         if limit is not None and self.replicates > limit:
-            raise FieldProblem("too_large", f"at most {limit} replicates are allowed (BANDWISE_MAX_REPLICATES), got {self.replicates}", "replicates")
+            raise FieldProblem("too_large", f"at most {limit} replicates are allowed (BANDWISE_MAX_REPLICATES), got {self.replicates}")
         return self
 
 
@@ -325,7 +326,7 @@ class ProblemSlot(_Out):
 class BatchResponse(_Out):
     """One slot per series, in the order given."""
 
-    results: list[SmoothResponse | ProblemSlot]
+    results: Sequence[SmoothResponse | ProblemSlot]
 
 
 class KernelOut(_Out):

@@ -76,7 +76,7 @@ class ProblemCORSMiddleware(CORSMiddleware):
     def preflight_response(self, request_headers: Any) -> Response:
         response = super().preflight_response(request_headers)
         if response.status_code == 400:
-            detail = response.body.decode("utf-8", "replace") + " (not in BANDWISE_CORS_ORIGINS or not an allowed method/header)."
+            detail = bytes(response.body).decode("utf-8", "replace") + " (not in BANDWISE_CORS_ORIGINS or not an allowed method/header)."
             body = orjson.dumps({"type": "/problems/malformed-request", "title": reason_phrase(400), "status": 400, "detail": "CORS preflight refused: " + detail})
             headers = {k: v for k, v in response.headers.items() if k.lower() not in ("content-length", "content-type")}
             return Response(body, status_code=400, media_type=PROBLEM_MEDIA_TYPE, headers=headers)
@@ -136,7 +136,7 @@ def build_app(settings: Settings, entry: WorkerEntry) -> FastAPI:
     if assets is not None:
         app.mount("/docs/assets", StaticFiles(directory=assets), name="docs-assets")
     app.openapi = lambda: build_openapi(app)  # type: ignore[method-assign]
-    hot = {r.path: r for router in routers for r in router.routes if isinstance(r, APIRoute) and r.path in HOT_KINDS and "POST" in r.methods}
+    hot = {r.path: r for router in routers for r in router.routes if isinstance(r, APIRoute) and r.path in HOT_KINDS and "POST" in (r.methods or ())}
     if set(hot) != set(HOT_KINDS):  # the direct path must not answer for a route that does not exist
         raise RuntimeError(f"numerical POST routes not registered: {sorted(set(HOT_KINDS) - set(hot))}")
     app.add_middleware(HeadAsGetMiddleware)  # innermost: HEAD is logged and counted as HEAD

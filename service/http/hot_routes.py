@@ -12,7 +12,7 @@ through to FastAPI.  The routes stay registered, so the OpenAPI schema,
 
 from __future__ import annotations
 
-from collections.abc import Awaitable, Callable
+from collections.abc import Awaitable, Callable, Mapping
 
 from starlette.requests import Request
 from starlette.responses import Response
@@ -44,7 +44,7 @@ class HotRoutesMiddleware:
         The app's handler turning a :class:`ProblemError` into a response.
     """
 
-    def __init__(self, app: ASGIApp, service: Service, routes: dict[str, BaseRoute], on_problem: ProblemHandler) -> None:
+    def __init__(self, app: ASGIApp, service: Service, routes: Mapping[str, BaseRoute], on_problem: ProblemHandler) -> None:
         self.app = app
         self.service = service
         self.targets = {path: (kind, routes[path]) for path, kind in HOT_KINDS.items()}

@@ -164,7 +164,7 @@ def _same_packages_in_forkserver() -> None:
         os.environ["PYTHONPATH"] = root + os.pathsep + current if current else root
 
 
-def _context(preload: tuple[str, ...]) -> multiprocessing.context.BaseContext:
+def _context(preload: tuple[str, ...]) -> multiprocessing.context.ForkServerContext | multiprocessing.context.SpawnContext:
     try:
         ctx = multiprocessing.get_context("forkserver")
     except ValueError:  # pragma: no cover - platforms without fork

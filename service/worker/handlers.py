@@ -13,7 +13,7 @@ import logging
 import re
 import time
 import traceback
-from collections.abc import Callable, Iterable
+from collections.abc import Callable, Iterable, Sequence
 from typing import Any
 
 import numpy as np
@@ -47,7 +47,7 @@ class JobContext:
 # ----------------------------------------------------------------- helpers
 
 
-def _array(values: Iterable[float] | None) -> np.ndarray | None:
+def _array(values: Sequence[float] | None) -> np.ndarray | None:
     if values is None:
         return None
     return np.fromiter(values, dtype=float, count=len(values))  # validated floats; a little faster than asarray
@@ -175,27 +175,25 @@ def _smooth_arrays(req: SmoothRequest, x: Any, y: Any, weights: Any, limits: dic
 
     estimate = np.ascontiguousarray(s.predict(cx), dtype=float)  # curve.se, when asked, is the SE of this estimate
     curve: dict[str, Any] = {"x": cx, "estimate": estimate}
-    p_est = np.asarray(s.predict(px), dtype=float) if px is not None else None
 
     p_lower = p_upper = p_ilow = p_ihigh = None
     band_info = None
     if bands is not None:
-        kwargs = {"level": bands.level, "method": bands.method, "replicates": bands.replicates, "seed": bands.seed, "simultaneous": bands.simultaneous}
         if px is not None and not bands.simultaneous:
             # Pointwise bands at curve and prediction points from one set of replicates.
-            both = s.bands(np.concatenate([cx, px]), **kwargs)
+            both = s.bands(np.concatenate([cx, px]), bands.level, bands.method, bands.replicates, bands.seed, bands.simultaneous)
             band_cautions = both.warnings
             m = cx.size
             curve["lower"], curve["upper"] = (np.ascontiguousarray(a[:m], dtype=float) for a in (both.lower, both.upper))
             centre, centred_elsewhere = both.estimate[:m], both.bias_corrected
             p_lower, p_upper = np.asarray(both.lower[m:]), np.asarray(both.upper[m:])
         else:
-            b = s.bands(cx, **kwargs)
+            b = s.bands(cx, bands.level, bands.method, bands.replicates, bands.seed, bands.simultaneous)
             band_cautions = b.warnings
             curve["lower"], curve["upper"] = (np.ascontiguousarray(a, dtype=float) for a in (b.lower, b.upper))
             centre, centred_elsewhere = b.estimate, b.bias_corrected
             if px is not None:
-                pb = s.bands(px, **kwargs)
+                pb = s.bands(px, bands.level, bands.method, bands.replicates, bands.seed, bands.simultaneous)
                 p_lower, p_upper = np.asarray(pb.lower), np.asarray(pb.upper)
         curve["se"] = np.ascontiguousarray(s.standard_error(cx), dtype=float)
         if centred_elsewhere:
@@ -223,15 +221,16 @@ def _smooth_arrays(req: SmoothRequest, x: Any, y: Any, weights: Any, limits: dic
 
     predictions: list[dict[str, Any]] = []
     if px is not None:
+        p_est = np.asarray(s.predict(px), dtype=float)
         extrapolated = np.asarray(s.extrapolated(px), dtype=bool)
         columns: list[tuple[str, list[Any]]] = [("x", px.tolist()), ("estimate", _nullable(p_est))]
-        if p_lower is not None:
+        if p_lower is not None and p_upper is not None:
             columns += [("lower", _nullable(p_lower)), ("upper", _nullable(p_upper))]
-        if p_ilow is not None:
+        if p_ilow is not None and p_ihigh is not None:
             columns += [("interval_lower", _nullable(p_ilow)), ("interval_upper", _nullable(p_ihigh))]
         columns.append(("extrapolated", extrapolated.tolist()))
         names = [name for name, _ in columns]
-        predictions = [dict(zip(names, row)) for row in zip(*(values for _, values in columns))]
+        predictions = [dict(zip(names, row, strict=True)) for row in zip(*(values for _, values in columns), strict=True)]
         cautions.extend(_point_cautions("prediction point", px, p_est, extrapolated, s))
 
     if curve_spec is not None and curve_spec.at is not None:
@@ -286,7 +285,7 @@ def _candidates(req: Any, limits: dict[str, int]) -> int:
 def _nullable(values: np.ndarray) -> list[float | None]:
     """Floats with NaN/inf replaced by None (JSON null)."""
     values = np.asarray(values, dtype=float)
-    out = values.tolist()
+    out: list[float | None] = values.tolist()
     bad = np.flatnonzero(~np.isfinite(values))
     for i in bad.tolist():
         out[i] = None

@@ -191,7 +191,7 @@ def _ordered(lower: list[Any] | None, upper: list[Any] | None) -> None:
     if lower is None or upper is None:
         return
     assert len(lower) == len(upper)
-    for lo, hi in zip(lower, upper):
+    for lo, hi in zip(lower, upper, strict=False):
         if lo is not None and hi is not None:
             assert lo <= hi, (lo, hi)
 
@@ -204,7 +204,7 @@ def _check_smooth_answer(doc: dict[str, Any], req: SmoothRequest) -> None:
     assert len(curve["x"]) == len(curve["estimate"]) == expected_points
     _ordered(curve.get("lower"), curve.get("upper"))
     assert len(doc["predictions"]) == len(req.predict_at or [])
-    for given_x, prediction in zip(req.predict_at or [], doc["predictions"]):
+    for given_x, prediction in zip(req.predict_at or [], doc["predictions"], strict=False):
         assert prediction["x"] == pytest.approx(given_x)
         _ordered([prediction.get("lower")], [prediction.get("upper")])
         _ordered([prediction.get("interval_lower")], [prediction.get("interval_upper")])

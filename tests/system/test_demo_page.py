@@ -203,7 +203,7 @@ def defined(*arrays: list[float | None]) -> np.ndarray:
 
 
 def as_float(values: list[float | None], mask: np.ndarray) -> np.ndarray:
-    return np.array([v for v, keep in zip(values, mask) if keep], dtype=float)
+    return np.array([v for v, keep in zip(values, mask, strict=False) if keep], dtype=float)
 
 
 def check_chart_matches(tab: Page, request: dict[str, Any], body: dict[str, Any]) -> tuple[float, float, float, float]:
@@ -227,8 +227,8 @@ def check_chart_matches(tab: Page, request: dict[str, Any], body: dict[str, Any]
         runs = np.split(np.flatnonzero(band_mask), np.flatnonzero(np.diff(np.flatnonzero(band_mask)) > 1) + 1)
         for run in runs:
             xs = [curve["x"][i] for i in run]
-            expected += [(ax * x + bx, ay * curve["upper"][i] + by) for x, i in zip(xs, run)]
-            expected += [(ax * x + bx, ay * curve["lower"][i] + by) for x, i in reversed(list(zip(xs, run)))]
+            expected += [(ax * x + bx, ay * curve["upper"][i] + by) for x, i in zip(xs, run, strict=False)]
+            expected += [(ax * x + bx, ay * curve["lower"][i] + by) for x, i in reversed(list(zip(xs, run, strict=False)))]
         assert np.max(np.abs(drawn - np.array(expected))) < PIXEL_TOLERANCE
     else:
         assert tab.page.query_selector("#band-path") is None
