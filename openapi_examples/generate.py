@@ -59,7 +59,7 @@ def build() -> list[dict[str, Any]]:
             "status": 200,
             "summary": "Cold store, automatic bandwidth with bootstrap bands",
             "description": "Bandwidth chosen by GCV over 15 candidates; 95 % pointwise wild-bootstrap bands from 200 replicates (seed 1). The answer carries the pointwise_bands caution.",
-            "request": {"x": cx, "y": cy, "bandwidth": "auto", "selector": "gcv", "candidates": 15, "curve": {"points": 20}, "bands": {"method": "wild_bootstrap", "level": 0.95, "replicates": 200, "seed": 1}},
+            "request": {"x": cx, "y": cy, "bandwidth": "auto", "selector": "gcv", "candidate_count": 15, "curve": {"points": 20}, "bands": {"method": "wild_bootstrap", "level": 0.95, "replicates": 200, "seed": 1}},
         },
         {
             "name": "predictions_with_extrapolation",
@@ -105,7 +105,7 @@ def build() -> list[dict[str, Any]]:
             "status": 200,
             "summary": "Cold store, bandwidth selection only",
             "description": "Leave-one-out cross-validation over 12 candidates; every candidate's score is returned.",
-            "request": {"x": cx, "y": cy, "kernel": "epanechnikov", "selector": "loocv", "candidates": 12},
+            "request": {"x": cx, "y": cy, "kernel": "epanechnikov", "selector": "loocv", "candidate_count": 12},
         },
     ]
 
@@ -114,7 +114,7 @@ async def _record(examples: list[dict[str, Any]]) -> list[Any]:
     import httpx
 
     from service.app import create_app
-    from service.settings import Settings
+    from service.runtime.settings import Settings
 
     app = create_app(Settings(workers=1))
     async with app.router.lifespan_context(app):
@@ -138,7 +138,7 @@ def main() -> None:
     examples = build()
     responses = asyncio.run(_record(examples))
     index = []
-    for ex, response in zip(examples, responses):
+    for ex, response in zip(examples, responses, strict=True):
         _dump(HERE / f"{ex['name']}.request.json", ex["request"])
         _dump(HERE / f"{ex['name']}.response.json", response)
         index.append({k: ex[k] for k in ("name", "path", "status", "summary", "description")} | {"method": "post"})

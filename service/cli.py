@@ -18,7 +18,7 @@ import time
 from types import FrameType
 from typing import Any
 
-from . import __version__
+from service import __version__
 
 log = logging.getLogger("bandwise.cli")
 
@@ -69,10 +69,10 @@ def serve(overrides: dict[str, Any]) -> int:
     import uvicorn
     from pydantic import ValidationError
 
-    from .allocator import tune_allocator
-    from .app import create_app
-    from .logs import configure_logging, uvicorn_log_config
-    from .settings import Settings, describe_errors, unknown_variables
+    from service.app import create_app
+    from service.runtime.allocator import tune_allocator
+    from service.runtime.logs import configure_logging, uvicorn_log_config
+    from service.runtime.settings import Settings, describe_errors, unknown_variables
 
     try:
         settings = Settings(**{k: v for k, v in overrides.items() if v is not None})

@@ -23,7 +23,7 @@ from __future__ import annotations
 
 import argparse
 import tracemalloc
-from typing import Callable
+from collections.abc import Callable
 
 import numpy as np
 

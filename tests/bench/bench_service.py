@@ -30,7 +30,6 @@ import asyncio
 import os
 import re
 import signal
-import socket
 import statistics
 import subprocess
 import sys
@@ -44,7 +43,7 @@ import numpy as np
 import orjson
 from fastapi import Request
 
-from service.models import SmoothRequest
+from service.contract.models import SmoothRequest
 
 from .machine import describe
 
@@ -108,7 +107,7 @@ def _serve_with_uvicorn(app: Any) -> None:
     import uvicorn
 
     from service.cli import _bind
-    from service.logs import uvicorn_log_config
+    from service.runtime.logs import uvicorn_log_config
 
     sock = _bind("127.0.0.1", 0)
     config = uvicorn.Config(app, log_config=uvicorn_log_config("warning"), access_log=False, lifespan="on", server_header=False)
@@ -170,9 +169,9 @@ def threaded_app() -> Any:
     from fastapi import FastAPI
     from fastapi.responses import Response
 
-    from service.handlers import JobContext, run_job
-    from service.jobs import Job
-    from service.settings import Settings
+    from service.contract.jobs import Job
+    from service.runtime.settings import Settings
+    from service.worker.handlers import JobContext, run_job
 
     settings = Settings()
     ctx = JobContext(settings.limits(), settings.gzip_min_bytes, settings.gzip_level)
@@ -293,7 +292,7 @@ def _in_process(body: bytes, response_obj: Any, repeat: int) -> float:
         y = np.asarray(req["y"], dtype=float)
         s = fit(x, y, bandwidth=req.get("bandwidth", "auto"), kernel=req.get("kernel", "gaussian"))
         s.predict(np.linspace(s.x_min, s.x_max, 200))
-        (s.effective_df, s.residual_scale, s.warnings)
+        _ = (s.effective_df, s.residual_scale, s.warnings)
         orjson.dumps(response_obj)
         times.append(time.perf_counter() - t0)
     return statistics.median(times)
@@ -368,7 +367,7 @@ def bench_small(service: Proc, total: int, connections: int, kernel: str) -> tup
         raw.stop()
         os.unlink(path)
     per_request = {k: v / (_SMALL_ROUNDS * (total // connections) * connections) * 1000.0 for k, v in cpu.items()}
-    paired = statistics.median(o / t for o, t in zip(ours, theirs))
+    paired = statistics.median(o / t for o, t in zip(ours, theirs, strict=True))
     return max(ours), max(theirs), max(ours) / max(theirs), len(response), per_request, paired
 
 

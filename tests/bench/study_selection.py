@@ -136,7 +136,7 @@ def replicate(
         for code in {c.code for c in sel.warnings}:
             out[f"{s}:{code}"] = 1.0
     values = ase(x, y, m, kernel, np.array(list(chosen.values())))
-    for (s, _), v in zip(chosen.items(), values):
+    for (s, _), v in zip(chosen.items(), values, strict=True):
         out[s] = float(v) / best
     return out
 

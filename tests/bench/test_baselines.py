@@ -15,9 +15,9 @@ import httpx
 import orjson
 import pytest
 
-from service.handlers import JobContext, run_job
-from service.jobs import Job
-from service.settings import Settings
+from service.contract.jobs import Job
+from service.runtime.settings import Settings
+from service.worker.handlers import JobContext, run_job
 
 from .bench_service import _data, bare_app, raw_app, threaded_app
 

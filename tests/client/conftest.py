@@ -26,14 +26,14 @@ from collections.abc import Awaitable, Callable, Iterator
 from dataclasses import dataclass, field
 from http.server import BaseHTTPRequestHandler, ThreadingHTTPServer
 from pathlib import Path
-from typing import Any, TypeVar, Union
+from typing import Any, TypeVar
 
 import httpx
 import pytest
 
 from service.app import create_app
 from service.client import AsyncBandwiseClient, BandwiseClient, RetryPolicy
-from service.settings import Settings
+from service.runtime.settings import Settings
 
 T = TypeVar("T")
 
@@ -167,7 +167,7 @@ class Seen:
     body: bytes
 
 
-Script = list[Union[Reply, Callable[[], Reply]]]
+Script = list[Reply | Callable[[], Reply]]
 
 
 class ScriptedServer:

@@ -28,7 +28,7 @@ from service.client import (
     ValidationFailed,
     to_numpy,
 )
-from service.models import BandwidthResponse, KernelsResponse, ProblemSlot, SmoothResponse
+from service.contract.models import BandwidthResponse, KernelsResponse, ProblemSlot, SmoothResponse
 
 from .conftest import API_KEY, InProcessApp
 

@@ -64,7 +64,7 @@ def test_non_finite_values(offline: BandwiseClient, bad: float) -> None:
     x[3] = bad
     error = refused(offline.smooth, x, GOOD_Y)
     assert fields(error) == ["x"]
-    assert error.errors[0].type == "finite_number"
+    assert error.errors[0].type == "not_finite"
     assert "index 3" in error.errors[0].message
     y = list(GOOD_Y)
     y[0] = bad

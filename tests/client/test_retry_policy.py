@@ -12,13 +12,13 @@ full jitter is ``sleep = random_between(0, min(cap, base * 2 ** attempt))``.
 from __future__ import annotations
 
 import random
-from datetime import datetime, timedelta, timezone
+from datetime import UTC, datetime, timedelta
 
 import pytest
 
 from service.client import RetryPolicy, parse_retry_after
 
-NOW = datetime(1999, 12, 31, 23, 57, 59, tzinfo=timezone.utc)
+NOW = datetime(1999, 12, 31, 23, 57, 59, tzinfo=UTC)
 
 
 @pytest.mark.parametrize(
@@ -44,7 +44,7 @@ def test_unreadable_retry_after_is_ignored(header: str | None) -> None:
 
 
 def test_retry_after_date_uses_the_clock_by_default() -> None:
-    later = datetime.now(timezone.utc) + timedelta(seconds=30)
+    later = datetime.now(UTC) + timedelta(seconds=30)
     value = parse_retry_after(later.strftime("%a, %d %b %Y %H:%M:%S GMT"))
     assert value is not None and 28.0 <= value <= 30.0  # whole-second resolution of HTTP-dates
 

@@ -13,7 +13,7 @@ from typing import Any
 import pytest
 import yaml
 
-from service.settings import Settings
+from service.runtime.settings import Settings
 from tests.deploy.support import DEPLOY, GATEWAY_TEMPLATE, strip_comments
 
 COMPOSE: dict[str, Any] = yaml.safe_load((DEPLOY / "compose.yaml").read_text(encoding="utf-8"))

@@ -20,7 +20,7 @@ import httpx
 import pytest
 import yaml
 
-from service.settings import Settings
+from service.runtime.settings import Settings
 from tests.conftest import require_program
 from tests.deploy.support import DEPLOY, REPO, bandwise_executable, free_port, stop, wait_until_ok
 

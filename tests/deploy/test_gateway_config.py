@@ -1,6 +1,6 @@
 """The gateway template deploy/gateway/nginx.conf: limits agree with the service, retries are safe.
 
-Values compared against the service come from ``service.settings.Settings``
+Values compared against the service come from ``service.runtime.settings.Settings``
 defaults, so a change on either side without the other fails here.
 """
 
@@ -12,7 +12,7 @@ import subprocess
 import pytest
 import yaml
 
-from service.settings import Settings
+from service.runtime.settings import Settings
 from tests.conftest import require_program
 from tests.deploy.support import (
     DEPLOY,

@@ -14,7 +14,7 @@ import kubernetes_validate
 import pytest
 import yaml
 
-from service.settings import Settings
+from service.runtime.settings import Settings
 from tests.deploy.support import DEPLOY
 
 K8S = DEPLOY / "k8s"
@@ -145,7 +145,7 @@ def test_configmap_holds_only_real_settings_with_valid_values(monkeypatch: pytes
     data = resources()["ConfigMap"]["data"]
     known = {f"BANDWISE_{name.upper()}" for name in Settings.model_fields}
     unknown = set(data) - known
-    assert not unknown, f"not settings of service/settings.py: {sorted(unknown)}"
+    assert not unknown, f"not settings of service/runtime/settings.py: {sorted(unknown)}"
     assert all(isinstance(v, str) for v in data.values()), "ConfigMap values must be strings"
     for key, value in data.items():
         monkeypatch.setenv(key, value)

@@ -30,7 +30,6 @@ import time
 from collections import Counter
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any
 
 import httpx
 import psutil
@@ -147,7 +146,7 @@ async def _sample_rss(process: psutil.Process, stop_event: asyncio.Event, peak: 
         peak[0] = max(peak[0], _tree_rss(process))
         try:
             await asyncio.wait_for(stop_event.wait(), 0.1)
-        except asyncio.TimeoutError:
+        except TimeoutError:
             pass
 
 

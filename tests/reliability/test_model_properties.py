@@ -31,7 +31,7 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from pydantic import ValidationError
 
-from service.models import KERNEL_NAMES, SELECTOR_NAMES, BandwidthRequest, SmoothRequest
+from service.contract.models import KERNEL_NAMES, SELECTOR_NAMES, BandwidthRequest, SmoothRequest
 from tests.service.conftest import Harness
 
 from .figures import record
@@ -106,7 +106,7 @@ def data_fields(draw: st.DrawFn, clean: bool | None = None) -> dict[str, Any]:
     if draw(st.integers(0, 4)) == 0:
         body["rule"] = draw(pick(clean, ["min", "one_se"], ["max"]))
     if draw(st.integers(0, 4)) == 0:
-        body["candidates"] = draw(st.integers(min_value=2 if clean else 0, max_value=LIMITS["max_candidates"] + (0 if clean else 8)))
+        body["candidate_count"] = draw(st.integers(min_value=2 if clean else 0, max_value=LIMITS["max_candidates"] + (0 if clean else 8)))
     if draw(st.integers(0, 5)) == 0:
         body["bandwidth_min"] = draw(st.floats(min_value=1e-3 if clean else -1.0, max_value=50.0, allow_nan=False))
     if draw(st.integers(0, 5)) == 0:
@@ -191,7 +191,7 @@ def _ordered(lower: list[Any] | None, upper: list[Any] | None) -> None:
     if lower is None or upper is None:
         return
     assert len(lower) == len(upper)
-    for lo, hi in zip(lower, upper):
+    for lo, hi in zip(lower, upper, strict=False):
         if lo is not None and hi is not None:
             assert lo <= hi, (lo, hi)
 
@@ -204,7 +204,7 @@ def _check_smooth_answer(doc: dict[str, Any], req: SmoothRequest) -> None:
     assert len(curve["x"]) == len(curve["estimate"]) == expected_points
     _ordered(curve.get("lower"), curve.get("upper"))
     assert len(doc["predictions"]) == len(req.predict_at or [])
-    for given_x, prediction in zip(req.predict_at or [], doc["predictions"]):
+    for given_x, prediction in zip(req.predict_at or [], doc["predictions"], strict=False):
         assert prediction["x"] == pytest.approx(given_x)
         _ordered([prediction.get("lower")], [prediction.get("upper")])
         _ordered([prediction.get("interval_lower")], [prediction.get("interval_upper")])

@@ -16,9 +16,14 @@ RFC 9457: every 4xx is ``application/problem+json`` with ``type``, ``title``,
 ``status`` (equal to the HTTP status) and ``detail``, and never a traceback.
 
 ``POST /v1/smooth/batch`` answers 200 when only some series are invalid (each
-slot carries its own problem, DESIGN.md), so there the built-in "invalid data
-rejected" check is replaced by: a 200 to a schema-violating batch holds at
-least one problem slot.
+slot carries its own problem, DESIGN.md); the document says so (a slot is any
+JSON object), so the built-in "invalid data rejected" check applies to it as
+to every other operation, and a 200 to a batch whose envelope the schema
+refuses must hold a problem slot.
+
+A second test runs the schemathesis command line, as an outside user would,
+against a real ``python -m service`` process on 127.0.0.1 (its own phases:
+examples, coverage, fuzzing), bounded in examples per operation and in time.
 
 The case budget (``BANDWISE_FUZZ_EXAMPLES`` per strategy, default below) gives
 more than 2,000 requests; the seed is fixed (``BANDWISE_FUZZ_SEED``) so a CI
@@ -29,12 +34,18 @@ from __future__ import annotations
 
 import json
 import os
+import re
+import socket
+import subprocess
+import sys
 import time
 from collections import Counter
 from collections.abc import Callable, Iterator
 from dataclasses import dataclass, field
+from pathlib import Path
 from typing import Any
 
+import httpx
 import pytest
 import schemathesis
 import schemathesis.checks as checks
@@ -44,7 +55,7 @@ from schemathesis import GenerationMode
 from schemathesis.python import asgi
 
 from service.app import create_app
-from service.settings import Settings
+from service.runtime.settings import Settings
 
 from .figures import record
 
@@ -183,7 +194,7 @@ def _run_strategy(operation: Any, name: str, strategy: Any, examples: int, tally
     label = operation.label
     is_batch = label == "POST /v1/smooth/batch"
     run_checks = list(BUILT_IN_CHECKS)
-    if negative and not is_batch:
+    if negative:
         run_checks.append(checks.negative_data_rejection)
 
     @settings(max_examples=examples, deadline=None, database=None, phases=[Phase.generate], suppress_health_check=list(HealthCheck))
@@ -270,3 +281,68 @@ def test_schema_fuzz_no_server_errors_and_conforming_answers(schema: Any) -> Non
     assert not report, f"{len(unknown)} failing cases, {len(report)} distinct:\n\n" + "\n\n".join(report[:10])
     if EXAMPLES >= 300:
         assert total >= MIN_CASES, f"only {total} cases generated; the budget is meant to give at least {MIN_CASES}"
+
+
+CLI_CHECKS = "not_a_server_error,status_code_conformance,content_type_conformance,response_headers_conformance,response_schema_conformance,negative_data_rejection"
+CLI_EXAMPLES = int(os.environ.get("BANDWISE_FUZZ_CLI_EXAMPLES", "30"))
+CLI_SECONDS = int(os.environ.get("BANDWISE_FUZZ_CLI_SECONDS", "90"))
+
+
+def _free_port() -> int:
+    with socket.socket() as sock:
+        sock.bind(("127.0.0.1", 0))
+        return int(sock.getsockname()[1])
+
+
+def _limits_env() -> dict[str, str]:
+    names = ("max_points", "max_predict_points", "max_curve_points", "max_replicates", "max_batch_series", "max_batch_points", "max_candidates")
+    return {f"BANDWISE_{name.upper()}": str(getattr(FUZZ_SETTINGS, name)) for name in names}
+
+
+def test_schemathesis_cli_against_a_real_server_finds_nothing(tmp_path: Path) -> None:
+    """``schemathesis run`` with negative_data_rejection and response_schema_conformance against ``python -m service``."""
+    cli = Path(sys.executable).with_name("schemathesis")
+    if not cli.exists():
+        pytest.skip("schemathesis command not installed beside this Python")
+    port = _free_port()
+    env = {**os.environ, **_limits_env(), "BANDWISE_ACCESS_LOG": "false", "BANDWISE_LOG_LEVEL": "warning"}
+    server = subprocess.Popen(
+        [sys.executable, "-m", "service", "serve", "--host", "127.0.0.1", "--port", str(port), "--workers", "2"],
+        env=env,
+        stdout=subprocess.DEVNULL,
+        stderr=subprocess.DEVNULL,
+    )
+    try:
+        deadline = time.monotonic() + 120.0
+        while True:
+            assert server.poll() is None, "the service exited at start"
+            try:
+                if httpx.get(f"http://127.0.0.1:{port}/readyz", timeout=2.0).status_code == 200:
+                    break
+            except httpx.HTTPError:
+                pass
+            assert time.monotonic() < deadline, "the service did not become ready within 120 s"
+            time.sleep(0.2)
+        command = [
+            str(cli), "run", f"http://127.0.0.1:{port}/openapi.json",
+            "--checks", CLI_CHECKS,
+            "--max-examples", str(CLI_EXAMPLES),
+            "--max-time", str(CLI_SECONDS),
+            "--phases", "examples,coverage,fuzzing",
+            "--seed", str(FUZZ_SEED),
+            "--request-timeout", "30",
+            "--no-color",
+        ]
+        done = subprocess.run(command, cwd=tmp_path, capture_output=True, text=True, timeout=CLI_SECONDS + 120, check=False)
+    finally:
+        server.terminate()
+        try:
+            server.wait(timeout=30)
+        except subprocess.TimeoutExpired:
+            server.kill()
+            server.wait(timeout=10)
+    output = done.stdout + done.stderr
+    counts = re.search(r"(\d+) generated, (\d+) passed", output)
+    record("schemathesis CLI against a real server", counts.group(0) if counts else output[-300:])
+    assert done.returncode == 0, output[-6000:]
+    assert counts is not None and counts.group(1) == counts.group(2) and int(counts.group(1)) > 0, output[-3000:]

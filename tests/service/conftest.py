@@ -17,7 +17,7 @@ import httpx
 import pytest
 
 from service.app import create_app
-from service.settings import Settings
+from service.runtime.settings import Settings
 
 TEST_KEY = "harbour-street-test-key"
 DASHBOARD_ORIGIN = "http://dashboard.harbour.test"

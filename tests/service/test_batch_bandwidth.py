@@ -8,7 +8,7 @@ import numpy as np
 
 import estimators
 from estimators.demo import cold_store, parcel_depot
-from service.models import BandwidthResponse, BatchResponse
+from service.contract.models import BandwidthResponse, BatchResponse
 
 from .conftest import Harness
 
@@ -68,7 +68,7 @@ def test_batch_limits(small: Harness) -> None:
 
 
 def test_bandwidth_endpoint_matches_estimators(api: Harness) -> None:
-    body = {"x": CX, "y": CY, "kernel": "epanechnikov", "selector": "loocv", "candidates": 15}
+    body = {"x": CX, "y": CY, "kernel": "epanechnikov", "selector": "loocv", "candidate_count": 15}
     response = api.post("/v1/bandwidth", json=body)
     assert response.status_code == 200, response.text[:500]
     doc = response.json()
@@ -87,7 +87,7 @@ def test_bandwidth_endpoint_matches_estimators(api: Harness) -> None:
 
 
 def test_bandwidth_endpoint_agrees_with_smooth_auto(api: Harness) -> None:
-    common = {"x": CX, "y": CY, "selector": "gcv", "rule": "one_se", "candidates": 20}
+    common = {"x": CX, "y": CY, "selector": "gcv", "rule": "one_se", "candidate_count": 20}
     alone = api.post("/v1/bandwidth", json=common).json()["bandwidth"]
     within = api.post("/v1/smooth", json={**common, "curve": {"points": 5}}).json()["bandwidth"]
     assert alone == within

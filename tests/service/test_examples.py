@@ -16,7 +16,7 @@ from typing import Any
 
 import pytest
 
-from service.examples import Example, load_examples
+from service.http.examples import Example, load_examples
 
 from .conftest import Harness
 
@@ -40,7 +40,7 @@ def _compare(got: Any, want: Any, where: str) -> list[str]:
         if not isinstance(got, list) or len(got) != len(want):
             return [f"{where}: expected a list of {len(want)}, got {got if not isinstance(got, list) else len(got)}"]
         diffs = []
-        for i, (g, w) in enumerate(zip(got, want)):
+        for i, (g, w) in enumerate(zip(got, want, strict=False)):
             diffs += _compare(g, w, f"{where}[{i}]")
         return diffs
     if isinstance(want, bool) or want is None or isinstance(want, str):

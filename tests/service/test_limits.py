@@ -10,7 +10,7 @@ from typing import Any
 
 import pytest
 
-from service.settings import MIB, Settings
+from service.runtime.settings import MIB, Settings
 
 from .conftest import Harness, problem_ok
 
@@ -73,9 +73,9 @@ def test_replicates_limit(small: Harness) -> None:
 def test_candidates_limit(small: Harness) -> None:
     body = _series(30)
     body.pop("bandwidth")
-    response = small.post("/v1/smooth", json={**body, "candidates": 11})
+    response = small.post("/v1/smooth", json={**body, "candidate_count": 11})
     problem_ok(response, 422)
-    assert _fields(response) == ["candidates"]
+    assert _fields(response) == ["candidate_count"]
     # Without an explicit count the default is capped by the limit, so the request still works.
     ok = small.post("/v1/smooth", json={**body, "curve": {"points": 5}})
     assert ok.status_code == 200, ok.text

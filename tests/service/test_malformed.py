@@ -79,7 +79,7 @@ CASES: list[tuple[str, str, str, dict[str, Any], int, str | None]] = [
     ("predict_at with NaN", "POST", "/v1/smooth", {"content": b'{"x":[1,2,3],"y":[1,2,3],"predict_at":[NaN]}', "headers": JSON}, 422, "predict_at[0]"),
     ("include_fitted as string", "POST", "/v1/smooth", {"json": _with(include_fitted="yes")}, 422, "include_fitted"),
     ("bandwidth_min above max", "POST", "/v1/smooth", {"json": _with(bandwidth="auto", bandwidth_min=5.0, bandwidth_max=1.0)}, 422, "bandwidth_max"),
-    ("candidates one", "POST", "/v1/smooth", {"json": _with(bandwidth="auto", candidates=1)}, 422, "candidates"),
+    ("candidates one", "POST", "/v1/smooth", {"json": _with(bandwidth="auto", candidate_count=1)}, 422, "candidate_count"),
     ("all x equal with auto bandwidth", "POST", "/v1/smooth", {"json": {"x": [3.0] * 6, "y": [1, 2, 3, 4, 5, 6]}}, 422, None),
     ("form content type", "POST", "/v1/smooth", {"content": b'{"x":[1,2],"y":[1,2]}', "headers": {"content-type": "application/x-www-form-urlencoded"}}, 415, None),
     ("text content type", "POST", "/v1/smooth", {"content": b'{"x":[1,2],"y":[1,2]}', "headers": {"content-type": "text/plain"}}, 415, None),

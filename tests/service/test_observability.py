@@ -11,8 +11,8 @@ import httpx
 import pytest
 from fastapi import Request
 
-from service.jobs import Job
-from service.logs import AccessLogWriter, JsonFormatter
+from service.contract.jobs import Job
+from service.runtime.logs import AccessLogWriter, JsonFormatter
 
 from .conftest import Harness, problem_ok
 
@@ -141,7 +141,7 @@ def test_unexpected_exception_in_a_worker_is_a_500_problem(api: Harness) -> None
 def test_problem_type_uris_resolve(api: Harness) -> None:
     doc = api.post("/v1/smooth", json={}).json()
     page = api.get(doc["type"])
-    assert page.status_code == 200 and "Invalid request" in page.text
+    assert page.status_code == 200 and "Unprocessable Content" in page.text
     problem_ok(api.get("/problems/no-such-problem"), 404)
 
 

@@ -7,7 +7,7 @@ import re
 import jsonschema
 import pytest
 
-from service.models import SmoothRequest
+from service.contract.models import SmoothRequest
 
 from .conftest import Harness, problem_ok
 

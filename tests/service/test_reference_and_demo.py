@@ -8,7 +8,7 @@ import numpy as np
 import pytest
 
 from estimators.demo import DEMOS
-from service.models import DemoData, DemoList, KernelsResponse
+from service.contract.models import DemoData, DemoList, KernelsResponse
 
 from .conftest import Harness
 

@@ -7,9 +7,9 @@ import hashlib
 import pytest
 from pydantic import ValidationError
 
-from service.auth import KeyChecker, hash_key
-from service.limits import RateLimiter
-from service.settings import Settings
+from service.http.auth import KeyChecker, hash_key
+from service.http.limits import RateLimiter
+from service.runtime.settings import Settings
 
 from .conftest import DASHBOARD_ORIGIN, TEST_KEY, Harness, problem_ok
 

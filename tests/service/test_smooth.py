@@ -18,7 +18,7 @@ import pytest
 
 import estimators
 from estimators.demo import cold_store, parcel_depot
-from service.models import KERNEL_NAMES, SCORED_SELECTORS, SmoothResponse
+from service.contract.models import KERNEL_NAMES, SCORED_SELECTORS, SmoothResponse
 
 from .conftest import Harness
 
@@ -97,23 +97,24 @@ def test_selectors_and_rules(api: Harness, selector: str, rule: str) -> None:
         assert response.status_code == 422
         assert [e["field"] for e in response.json()["errors"]] == ["rule"]
         return
-    doc = _smooth(api, selector=selector, rule=rule, candidates=12, curve={"points": 10})
+    doc = _smooth(api, selector=selector, rule=rule, candidate_count=12, curve={"points": 10})
     ref = estimators.select_bandwidth(np.array(X), np.array(Y), selector=selector, rule=rule, candidates=12)
     assert doc["bandwidth"]["selector"] == selector and doc["bandwidth"]["rule"] == rule
     assert math.isclose(doc["bandwidth"]["value"], ref.chosen, rel_tol=1e-12)
 
 
 def test_scored_selectors_match_estimators() -> None:
-    from estimators.bandwidth import SCORED_SELECTORS as NUMERICS_SCORED, SELECTORS
+    from estimators.bandwidth import SCORED_SELECTORS as NUMERICS_SCORED
+    from estimators.bandwidth import SELECTORS
 
     assert tuple(SCORED_SELECTORS) == tuple(NUMERICS_SCORED)
-    from service.models import SELECTOR_NAMES
+    from service.contract.models import SELECTOR_NAMES
 
     assert tuple(SELECTOR_NAMES) == tuple(SELECTORS)
 
 
 def test_candidate_range(api: Harness) -> None:
-    doc = _smooth(api, candidates=7, bandwidth_min=0.5, bandwidth_max=4.0, curve={"points": 5})
+    doc = _smooth(api, candidate_count=7, bandwidth_min=0.5, bandwidth_max=4.0, curve={"points": 5})
     cands = doc["bandwidth"]["candidates"]
     assert len(cands) == 7
     assert math.isclose(cands[0], 0.5) and math.isclose(cands[-1], 4.0)
@@ -225,9 +226,35 @@ def test_simultaneous_band_is_wider_and_not_flagged_pointwise(api: Harness) -> N
 def test_analytic_bands(api: Harness) -> None:
     doc = _smooth(api, bandwidth=2.0, curve={"points": 10}, bands={"method": "analytic", "level": 0.95})
     assert doc["diagnostics"]["bands"] == {"method": "analytic", "level": 0.95, "simultaneous": False, "replicates": None, "seed": None}
-    ref = estimators.fit(np.array(X), np.array(Y), bandwidth=2.0).bands(np.array(doc["curve"]["x"]), level=0.95, method="analytic")
-    for key in ("lower", "upper", "se"):
+    s = estimators.fit(np.array(X), np.array(Y), bandwidth=2.0)
+    ref = s.bands(np.array(doc["curve"]["x"]), level=0.95, method="analytic")
+    for key in ("lower", "upper"):
         _close(doc["curve"][key], np.asarray(getattr(ref, key)), rtol=1e-9)
+    # Contract (issue 22): curve.se is the SE of curve.estimate; the bands' own centre comes as band_center.
+    _close(doc["curve"]["se"], np.asarray(s.standard_error(np.array(doc["curve"]["x"]))), rtol=1e-9)
+    _close(doc["curve"]["band_center"], np.asarray(ref.estimate), rtol=1e-9)
+
+
+def test_curve_se_is_the_standard_error_of_the_estimate(api: Harness) -> None:
+    # Closed form (common practice): a local-constant fit with a uniform kernel is the window mean, whose
+    # standard error is sigma / sqrt(count); with a fixed sigma estimate the ratio of SEs at two points with
+    # 3 and 5 points in the window is sqrt(5/3).
+    x = [float(i) for i in range(40)]
+    y = [float((i * 7) % 5) for i in range(40)]
+    doc = _smooth(api, x=x, y=y, kernel="uniform", degree=0, bandwidth=1.5, curve={"at": [0.0, 20.0]}, bands={"method": "analytic"})
+    se = doc["curve"]["se"]
+    # window [x - 1.5, x + 1.5]: 2 points at the edge x=0 (0, 1), 3 inside (19, 20, 21)
+    assert se[0] / se[1] == pytest.approx(math.sqrt(3 / 2), rel=1e-9)
+    assert "band_center" in doc["curve"]
+
+
+def test_degree_reduced_is_reported(api: Harness) -> None:
+    # Evenly spaced x, epanechnikov (support [-1, 1]) with bandwidth 1.5: at the first data point the window holds
+    # two distinct x values, too few for the degree-2 centre of local-linear bands.
+    x = [float(i) for i in range(30)]
+    y = [float((i * 3) % 7) for i in range(30)]
+    doc = _smooth(api, x=x, y=y, kernel="epanechnikov", bandwidth=1.5, curve={"at": [0.0, 15.0]}, bands={"method": "analytic"})
+    assert "degree_reduced" in _codes(doc)
 
 
 def test_default_curve_points(small: Harness) -> None:

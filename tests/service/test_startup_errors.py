@@ -11,7 +11,7 @@ from __future__ import annotations
 import pytest
 
 from service.cli import main
-from service.settings import COMPANION_VARIABLES, unknown_variables
+from service.runtime.settings import COMPANION_VARIABLES, unknown_variables
 
 
 def test_an_invalid_flag_is_named_with_where_to_set_it_and_no_traceback(capsys: pytest.CaptureFixture[str]) -> None:

@@ -8,7 +8,7 @@ import sys
 
 import pytest
 
-from service.allocator import tune_allocator
+from service.runtime.allocator import tune_allocator
 
 
 @pytest.mark.skipif(not sys.platform.startswith("linux") or ctypes.util.find_library("c") is None, reason="glibc mallopt only")
@@ -45,7 +45,7 @@ def test_worker_sockets_ask_for_buffers_a_large_body_fits_in() -> None:
     import socket
     from pathlib import Path
 
-    from service.pool import _SOCKET_BUFFER
+    from service.http.pool import _SOCKET_BUFFER
 
     from .conftest import Harness
 
@@ -74,7 +74,7 @@ def test_idle_workers_leave_on_their_own_at_shutdown_and_a_busy_one_is_stopped()
 
     import orjson
 
-    from service.jobs import Job
+    from service.contract.jobs import Job
 
     from .conftest import Harness
 

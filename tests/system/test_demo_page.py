@@ -27,7 +27,7 @@ import re
 import subprocess
 import sys
 from collections.abc import Iterator
-from datetime import datetime, timezone
+from datetime import UTC, datetime
 from pathlib import Path
 from typing import Any
 from urllib.parse import urljoin
@@ -203,7 +203,7 @@ def defined(*arrays: list[float | None]) -> np.ndarray:
 
 
 def as_float(values: list[float | None], mask: np.ndarray) -> np.ndarray:
-    return np.array([v for v, keep in zip(values, mask) if keep], dtype=float)
+    return np.array([v for v, keep in zip(values, mask, strict=False) if keep], dtype=float)
 
 
 def check_chart_matches(tab: Page, request: dict[str, Any], body: dict[str, Any]) -> tuple[float, float, float, float]:
@@ -227,8 +227,8 @@ def check_chart_matches(tab: Page, request: dict[str, Any], body: dict[str, Any]
         runs = np.split(np.flatnonzero(band_mask), np.flatnonzero(np.diff(np.flatnonzero(band_mask)) > 1) + 1)
         for run in runs:
             xs = [curve["x"][i] for i in run]
-            expected += [(ax * x + bx, ay * curve["upper"][i] + by) for x, i in zip(xs, run)]
-            expected += [(ax * x + bx, ay * curve["lower"][i] + by) for x, i in reversed(list(zip(xs, run)))]
+            expected += [(ax * x + bx, ay * curve["upper"][i] + by) for x, i in zip(xs, run, strict=False)]
+            expected += [(ax * x + bx, ay * curve["lower"][i] + by) for x, i in reversed(list(zip(xs, run, strict=False)))]
         assert np.max(np.abs(drawn - np.array(expected))) < PIXEL_TOLERANCE
     else:
         assert tab.page.query_selector("#band-path") is None
@@ -436,6 +436,6 @@ def test_epoch_milliseconds_show_as_dates(tab: Page) -> None:
         value = (x - bx) / ax
         midnight = round(value / day_ms) * day_ms
         assert abs(value - midnight) < 60_000, (text, value)  # ticks fall on whole UTC days
-        when = datetime.fromtimestamp(midnight / 1000, tz=timezone.utc)
+        when = datetime.fromtimestamp(midnight / 1000, tz=UTC)
         assert text == f"{when.day} {when.strftime('%b')}", (text, when.isoformat())
     assert "UTC" in " ".join(tab.page.eval_on_selector_all("#main-chart .axis-title", "els => els.map(e => e.textContent)"))

@@ -87,7 +87,7 @@ def long_request() -> dict[str, Any]:
         "engine": "exact",
         "bandwidth": "auto",
         "selector": "loocv",
-        "candidates": 200,
+        "candidate_count": 200,
         "curve": {"points": 2000},
     }
 
@@ -139,7 +139,7 @@ def test_no_request_is_lost_when_one_replica_dies_and_another_stops(tmp_path: Pa
     replicas = [start_replica(port, tmp_path / f"replica-{port}.log", REPLICA_ENV) for port in ports]
     gateway_proc = None
     try:
-        for port, proc in zip(ports, replicas):
+        for port, proc in zip(ports, replicas, strict=False):
             wait_until_ok(f"http://127.0.0.1:{port}/readyz", proc)
         gateway_proc = start_gateway(nginx, tmp_path / "gateway", gateway_port, ports)
         wait_until_ok(f"http://127.0.0.1:{gateway_port}/gateway/healthz", gateway_proc, timeout=10.0)

@@ -20,7 +20,7 @@ import httpx
 import pytest
 
 from estimators.demo import cold_store
-from service.settings import Settings
+from service.runtime.settings import Settings
 from tests.conftest import require_program
 from tests.deploy.support import free_port, start_gateway, start_replica, stop, wait_until_ok
 

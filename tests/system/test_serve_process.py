@@ -140,7 +140,7 @@ def test_every_contract_path_over_tcp(server: Server) -> None:
         batch = client.post("/v1/smooth/batch", json={"series": [body, {"x": [1.0]}]})
         assert batch.status_code == 200
         assert "problem" in batch.json()["results"][1]
-        bw = client.post("/v1/bandwidth", json={"x": [float(i) for i in range(20)], "y": [float(i % 4) for i in range(20)], "candidates": 5})
+        bw = client.post("/v1/bandwidth", json={"x": [float(i) for i in range(20)], "y": [float(i % 4) for i in range(20)], "candidate_count": 5})
         assert bw.status_code == 200 and len(bw.json()["bandwidth"]["candidates"]) == 5
         assert client.get("/v1/kernels").status_code == 200
         assert client.get("/v1/demo/parcel_depot").status_code == 200

@@ -5,7 +5,9 @@ Kept free of numpy and web imports: both sides import it.
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass, field
+from multiprocessing.connection import Connection
 from typing import Any
 
 JOB_KINDS = ("smooth", "batch", "bandwidth", "kernels", "demo_list", "demo", "ping")
@@ -68,3 +70,22 @@ class Outcome:
     points: int = 0
     problem: str | None = None
     seconds: float = 0.0
+
+
+@dataclass(frozen=True)
+class WorkerEntry:
+    """How the HTTP process starts a worker, without importing the worker side.
+
+    The composition root (:func:`service.app.create_app`) hands the worker
+    side's entry to the pool; the pool only calls ``target`` in a new process.
+
+    Attributes
+    ----------
+    target : callable
+        ``target(conn, config)`` serves jobs on ``conn`` until it closes.
+    preload : tuple of str
+        Modules the forkserver imports once, so forked workers start warm.
+    """
+
+    target: Callable[[Connection, dict[str, Any]], None]
+    preload: tuple[str, ...] = ()

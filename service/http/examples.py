@@ -33,7 +33,7 @@ def examples_dir() -> Path:
     configured = os.environ.get("BANDWISE_EXAMPLES_DIR")
     if configured:
         return Path(configured)
-    return Path(__file__).resolve().parent.parent / "openapi_examples"
+    return Path(__file__).resolve().parents[2] / "openapi_examples"
 
 
 def load_examples(directory: Path | None = None) -> list[Example]:

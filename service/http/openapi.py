@@ -8,9 +8,11 @@ from fastapi import FastAPI
 from fastapi.openapi.utils import get_openapi
 from pydantic import BaseModel
 
-from .errors import PROBLEM_MEDIA_TYPE, PROBLEM_TYPES
-from .examples import load_examples
-from .models import BandwidthRequest, BatchRequest, SmoothRequest
+from service.contract.errors import PROBLEM_MEDIA_TYPE, PROBLEM_TYPES
+from service.contract.field_errors import FIELD_ERROR_CODES
+from service.contract.models import BandwidthRequest, BatchRequest, SmoothRequest
+from service.contract.warnings import WARNING_CODES
+from service.http.examples import load_examples
 
 REQUEST_MODELS: dict[str, type[BaseModel]] = {
     "/v1/smooth": SmoothRequest,
@@ -59,5 +61,7 @@ def build_openapi(app: FastAPI) -> dict[str, Any]:
             slot = response.setdefault("content", {}).setdefault(media, {})
             slot.setdefault("examples", {})[example.name] = {"summary": example.summary, "value": example.response}
     doc["x-problem-types"] = {t.uri: {"status": t.status, "title": t.title, "description": t.description} for t in PROBLEM_TYPES.values()}
+    doc["x-warning-codes"] = dict(WARNING_CODES)
+    doc["x-field-error-codes"] = dict(FIELD_ERROR_CODES)
     app.openapi_schema = doc
     return doc

@@ -29,8 +29,8 @@ def tune_allocator() -> bool:
         import ctypes
 
         libc = ctypes.CDLL("libc.so.6")
-        ok = libc.mallopt(_M_MMAP_THRESHOLD, _MMAP_THRESHOLD) == 1
-        ok = libc.mallopt(_M_TRIM_THRESHOLD, _TRIM_THRESHOLD) == 1 and ok
+        ok = bool(libc.mallopt(_M_MMAP_THRESHOLD, _MMAP_THRESHOLD) == 1)
+        ok = bool(libc.mallopt(_M_TRIM_THRESHOLD, _TRIM_THRESHOLD) == 1) and ok
         return ok
     except (OSError, AttributeError):
         return False

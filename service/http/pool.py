@@ -38,11 +38,12 @@ import struct
 import sys
 import threading
 import time
+from collections.abc import Callable
 from concurrent.futures import ThreadPoolExecutor
 from pathlib import Path
-from typing import Any, Callable
+from typing import Any
 
-from .jobs import Job, Outcome
+from service.contract.jobs import Job, Outcome, WorkerEntry
 
 log = logging.getLogger("bandwise.pool")
 
@@ -156,19 +157,19 @@ def _same_packages_in_forkserver() -> None:
     Read when the forkserver starts, inherited by every worker.
     """
     os.environ.setdefault("PYTHONSAFEPATH", "1")
-    root = str(Path(__file__).resolve().parents[1])
+    root = str(Path(__file__).resolve().parents[2])
     current = os.environ.get("PYTHONPATH", "")
     found = {str(Path(p).resolve()) for p in [*sys.path[1:], *current.split(os.pathsep)] if p}
     if root not in found:
         os.environ["PYTHONPATH"] = root + os.pathsep + current if current else root
 
 
-def _context() -> multiprocessing.context.BaseContext:
+def _context(preload: tuple[str, ...]) -> multiprocessing.context.ForkServerContext | multiprocessing.context.SpawnContext:
     try:
         ctx = multiprocessing.get_context("forkserver")
     except ValueError:  # pragma: no cover - platforms without fork
         return multiprocessing.get_context("spawn")
-    ctx.set_forkserver_preload(["service.worker", "service.handlers", "service.warmup"])
+    ctx.set_forkserver_preload(list(preload))
     return ctx
 
 
@@ -182,18 +183,21 @@ class WorkerPool:
     queue_size : int
         Requests allowed to wait for a worker.
     config : dict
-        Handed to :func:`service.worker.worker_main`.
+        Handed to the worker entry's target.
+    entry : WorkerEntry
+        The worker side's entry point and the modules its forkserver preloads.
     on_event : callable, optional
         Called with ``(name, label)`` for countable events: ``("restart",
         reason)``.  Must be thread-safe.
     """
 
-    def __init__(self, size: int, queue_size: int, config: dict[str, Any], on_event: Callable[[str, str], None] | None = None) -> None:
+    def __init__(self, size: int, queue_size: int, config: dict[str, Any], entry: WorkerEntry, on_event: Callable[[str, str], None] | None = None) -> None:
         self.size = size
         self.queue_size = queue_size
         self._config = config
         self._on_event = on_event or (lambda name, label: None)
-        self._ctx = _context()
+        self._entry = entry
+        self._ctx = _context(entry.preload)
         self._threads = ThreadPoolExecutor(max_workers=size + 2, thread_name_prefix="bandwise-pool")
         self._idle: list[_Worker] = []
         self._all: set[_Worker] = set()
@@ -294,9 +298,7 @@ class WorkerPool:
         parent, child = self._ctx.Pipe(duplex=True)
         for end in (parent, child):
             _widen_buffers(end.fileno())
-        from .worker import worker_main
-
-        process = self._ctx.Process(target=worker_main, args=(child, self._config), name="bandwise-worker", daemon=True)
+        process = self._ctx.Process(target=self._entry.target, args=(child, self._config), name="bandwise-worker", daemon=True)
         process.start()
         child.close()
         if not parent.poll(STARTUP_TIMEOUT):

@@ -12,15 +12,15 @@ through to FastAPI.  The routes stay registered, so the OpenAPI schema,
 
 from __future__ import annotations
 
-from collections.abc import Awaitable, Callable
+from collections.abc import Awaitable, Callable, Mapping
 
 from starlette.requests import Request
 from starlette.responses import Response
 from starlette.routing import BaseRoute
 from starlette.types import ASGIApp, Receive, Scope, Send
 
-from .core import Service
-from .errors import ProblemError
+from service.contract.errors import ProblemError
+from service.http.core import Service
 
 HOT_KINDS = {"/v1/smooth": "smooth", "/v1/smooth/batch": "batch", "/v1/bandwidth": "bandwidth"}
 
@@ -44,7 +44,7 @@ class HotRoutesMiddleware:
         The app's handler turning a :class:`ProblemError` into a response.
     """
 
-    def __init__(self, app: ASGIApp, service: Service, routes: dict[str, BaseRoute], on_problem: ProblemHandler) -> None:
+    def __init__(self, app: ASGIApp, service: Service, routes: Mapping[str, BaseRoute], on_problem: ProblemHandler) -> None:
         self.app = app
         self.service = service
         self.targets = {path: (kind, routes[path]) for path, kind in HOT_KINDS.items()}

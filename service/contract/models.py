@@ -4,7 +4,7 @@ Requests are strict: unknown fields are errors (``extra="forbid"``), numbers
 must be finite JSON numbers (``NaN``/``Infinity`` tokens and literals that
 overflow a double are rejected), strings are never coerced to numbers.
 Size limits come from the settings and are passed in as the validation
-context ``{"limits": {...}}`` (see :meth:`service.settings.Settings.limits`).
+context ``{"limits": {...}}`` (see :meth:`service.runtime.settings.Settings.limits`).
 
 Response models document the answers in the OpenAPI schema; the handlers
 build plain dicts of the same shape for speed, and the tests check the two
@@ -14,7 +14,8 @@ agree.
 from __future__ import annotations
 
 import math
-from typing import Annotated, Any, Literal, Union
+from collections.abc import Sequence
+from typing import TYPE_CHECKING, Annotated, Any, Literal
 
 from pydantic import (
     BaseModel,
@@ -26,15 +27,22 @@ from pydantic import (
     model_validator,
 )
 
-KERNEL_NAMES = ("gaussian", "epanechnikov", "uniform", "triangular", "biweight", "triweight", "tricube", "cosine")
-SELECTOR_NAMES = ("loocv", "gcv", "aicc", "plugin", "rule_of_thumb")
-SCORED_SELECTORS = ("loocv", "gcv", "aicc")  # selectors whose scores carry standard errors (needed by rule one_se)
+from service.contract.field_errors import FIELD_ERROR_CODES, FieldProblem
+from service.contract.names import BAND_METHOD_NAMES, ENGINE_NAMES, KERNEL_NAMES, RULE_NAMES, SCORED_SELECTORS, SELECTOR_NAMES
+from service.contract.warnings import WARNING_CODES
 
-KernelName = Literal["gaussian", "epanechnikov", "uniform", "triangular", "biweight", "triweight", "tricube", "cosine"]
-SelectorName = Literal["loocv", "gcv", "aicc", "plugin", "rule_of_thumb"]
-RuleName = Literal["min", "one_se"]
-BandMethod = Literal["wild_bootstrap", "residual_bootstrap", "analytic"]
-EngineName = Literal["auto", "exact", "binned"]
+if TYPE_CHECKING:  # the checker sees plain strings; at run time each is a Literal of the names in estimators
+    KernelName = str
+    SelectorName = str
+    RuleName = str
+    BandMethod = str
+    EngineName = str
+else:
+    KernelName = Literal[KERNEL_NAMES]
+    SelectorName = Literal[SELECTOR_NAMES]
+    RuleName = Literal[RULE_NAMES]
+    BandMethod = Literal[BAND_METHOD_NAMES]
+    EngineName = Literal[ENGINE_NAMES]
 
 Finite = Annotated[float, Field(allow_inf_nan=False)]
 NonNegativeFinite = Annotated[float, Field(allow_inf_nan=False, ge=0)]
@@ -49,17 +57,19 @@ def _bandwidth(value: Any) -> float | str:
     if isinstance(value, str):
         if value == "auto":
             return value
-        raise ValueError(BANDWIDTH_MESSAGE)
+        raise FieldProblem("not_allowed", BANDWIDTH_MESSAGE)
     if isinstance(value, bool) or not isinstance(value, (int, float)):
-        raise ValueError(BANDWIDTH_MESSAGE)
+        raise FieldProblem("wrong_type", BANDWIDTH_MESSAGE)
     number = float(value)
-    if not math.isfinite(number) or number <= 0:
-        raise ValueError(BANDWIDTH_MESSAGE)
+    if not math.isfinite(number):
+        raise FieldProblem("not_finite", BANDWIDTH_MESSAGE)
+    if number <= 0:
+        raise FieldProblem("too_small", BANDWIDTH_MESSAGE)
     return number
 
 
 Bandwidth = Annotated[
-    Union[float, Literal["auto"]],
+    float | Literal["auto"],
     PlainValidator(_bandwidth),
     WithJsonSchema(
         {
@@ -89,13 +99,14 @@ class CurveSpec(_Strict):
     @model_validator(mode="after")
     def _check(self, info: ValidationInfo) -> CurveSpec:
         if self.points is not None and self.at is not None:
-            raise ValueError('give either "points" or "at", not both')
+            raise FieldProblem("invalid", 'give either "points" or "at", not both')
         limit = _limits(info).get("max_curve_points")
         if self.at is not None and len(self.at) == 0:
-            raise ValueError('"at" must hold at least one value')
+            raise FieldProblem("too_short", '"at" must hold at least one value')
         count = self.points if self.points is not None else (len(self.at) if self.at is not None else 0)
         if limit is not None and count > limit:
-            raise ValueError(f"at most {limit} curve points are allowed, got {count}")
+            code = "too_large" if self.points is not None else "too_long"
+            raise FieldProblem(code, f"at most {limit} curve points are allowed (BANDWISE_MAX_CURVE_POINTS), got {count}")
         return self
 
 
@@ -112,7 +123,7 @@ class BandsSpec(_Strict):
     def _check(self, info: ValidationInfo) -> BandsSpec:
         limit = _limits(info).get("max_replicates")
         if limit is not None and self.replicates > limit:
-            raise ValueError(f"at most {limit} replicates are allowed, got {self.replicates}")
+            raise FieldProblem("too_large", f"at most {limit} replicates are allowed (BANDWISE_MAX_REPLICATES), got {self.replicates}")
         return self
 
 
@@ -124,7 +135,7 @@ class _DataFields(_Strict):
     degree: Degree = Field(1, description="Local polynomial degree: 0 = local constant (Nadaraya–Watson), 1 = local linear, 2 = local quadratic.")
     selector: SelectorName = Field("gcv", description="Bandwidth selector used when bandwidth is \"auto\". Automatic bandwidths can be implausible (too rough or too smooth): look at the scores and warnings.")
     rule: RuleName = Field("min", description="min: the best-scoring candidate; one_se: the smoothest candidate within one standard error of the best.")
-    candidates: Annotated[int, Field(ge=2)] = Field(40, description="Number of candidate bandwidths scored by the selector (limit BANDWISE_MAX_CANDIDATES = 200).")
+    candidate_count: Annotated[int, Field(ge=2)] = Field(40, description="Number of candidate bandwidths scored by the selector (limit BANDWISE_MAX_CANDIDATES = 200). The answer's `bandwidth.candidates` lists them.")
     bandwidth_min: PositiveFinite | None = Field(None, description="Smallest candidate bandwidth (default: chosen from the data spacing).")
     bandwidth_max: PositiveFinite | None = Field(None, description="Largest candidate bandwidth (default: chosen from the data range).")
 
@@ -134,33 +145,25 @@ class _DataFields(_Strict):
         n = len(self.x)
         limit = limits.get("max_points")
         if limit is not None and n > limit:
-            raise _FieldError("x", f"at most {limit} points are allowed, got {n}")
+            raise FieldProblem("too_long", f"at most {limit} points are allowed (BANDWISE_MAX_POINTS), got {n}; split the data or thin it", "x")
         if n < 2:
-            raise _FieldError("x", f"at least 2 points are needed, got {n}")
+            raise FieldProblem("too_short", f"at least 2 points are needed, got {n}", "x")
         if len(self.y) != n:
-            raise _FieldError("y", f"y has {len(self.y)} values but x has {n}")
+            raise FieldProblem("invalid", f"y has {len(self.y)} values but x has {n}; give one y per x", "y")
         if self.weights is not None:
             if len(self.weights) != n:
-                raise _FieldError("weights", f"weights has {len(self.weights)} values but x has {n}")
+                raise FieldProblem("invalid", f"weights has {len(self.weights)} values but x has {n}; give one weight per x", "weights")
             if not any(w > 0 for w in self.weights):
-                raise _FieldError("weights", "at least one weight must be > 0")
+                raise FieldProblem("invalid", "at least one weight must be > 0", "weights")
         limit = limits.get("max_candidates")
-        if limit is not None and "candidates" in self.model_fields_set and self.candidates > limit:
-            raise _FieldError("candidates", f"at most {limit} candidates are allowed, got {self.candidates}")
+        if limit is not None and "candidate_count" in self.model_fields_set and self.candidate_count > limit:
+            raise FieldProblem("too_large", f"at most {limit} candidates are allowed (BANDWISE_MAX_CANDIDATES), got {self.candidate_count}", "candidate_count")
         if self.bandwidth_min is not None and self.bandwidth_max is not None and self.bandwidth_min >= self.bandwidth_max:
-            raise _FieldError("bandwidth_max", "bandwidth_max must be greater than bandwidth_min")
+            raise FieldProblem("invalid", "bandwidth_max must be greater than bandwidth_min", "bandwidth_max")
         selecting = getattr(self, "bandwidth", "auto") == "auto"
         if selecting and self.rule == "one_se" and self.selector not in SCORED_SELECTORS:
-            raise _FieldError("rule", f"rule one_se needs a selector that scores candidates ({', '.join(SCORED_SELECTORS)}); {self.selector} computes its bandwidth from a formula")
+            raise FieldProblem("invalid", f"rule one_se needs a selector that scores candidates ({', '.join(SCORED_SELECTORS)}); {self.selector} computes its bandwidth from a formula", "rule")
         return self
-
-
-class _FieldError(ValueError):
-    """A validation failure that belongs to one named field of the model."""
-
-    def __init__(self, field: str, message: str) -> None:
-        super().__init__(message)
-        self.field = field
 
 
 class SmoothRequest(_DataFields):
@@ -177,7 +180,7 @@ class SmoothRequest(_DataFields):
     def _check_predict(self, info: ValidationInfo) -> SmoothRequest:
         limit = _limits(info).get("max_predict_points")
         if limit is not None and self.predict_at is not None and len(self.predict_at) > limit:
-            raise _FieldError("predict_at", f"at most {limit} prediction points are allowed, got {len(self.predict_at)}")
+            raise FieldProblem("too_long", f"at most {limit} prediction points are allowed (BANDWISE_MAX_PREDICT_POINTS), got {len(self.predict_at)}", "predict_at")
         return self
 
 
@@ -185,16 +188,18 @@ class BandwidthRequest(_DataFields):
     """Data and selection settings for bandwidth selection alone."""
 
 
+BATCH_SERIES_DESCRIPTION = (
+    "The series, each a smooth request (the schema of `POST /v1/smooth`; at most BANDWISE_MAX_BATCH_SERIES = 1,000 series "
+    "and BANDWISE_MAX_BATCH_POINTS = 2,000,000 points in all). The envelope accepts any JSON object in a slot: each series is "
+    "validated on its own, and one that is not a valid smooth request (a missing `y`, say) is answered in its own slot of the "
+    "200 answer with a validation-error problem, while the other series are smoothed."
+)
+
+
 class BatchRequest(_Strict):
-    """Many series in one call; each is answered in its own slot."""
+    """Many series in one call; each is validated and answered in its own slot."""
 
-    series: list[SmoothRequest] = Field(..., min_length=1, description="The series, each a full smooth request (at most BANDWISE_MAX_BATCH_SERIES = 1,000 series and BANDWISE_MAX_BATCH_POINTS = 2,000,000 points in all).")
-
-
-class BatchEnvelope(_Strict):
-    """Outer shape of a batch request; the series are validated one by one."""
-
-    series: list[dict[str, Any]] = Field(..., min_length=1)
+    series: list[dict[str, Any]] = Field(..., min_length=1, description=BATCH_SERIES_DESCRIPTION, json_schema_extra={"items": {"type": "object", "description": "A smooth request (see SmoothRequest); validated per slot."}})
 
 
 # ---------------------------------------------------------------- responses
@@ -222,7 +227,8 @@ class CurveOut(_Out):
     estimate: list[float | None] = Field(..., description="Estimate at each x; null where no data lies in the kernel window.")
     lower: list[float | None] | None = Field(None, description="Lower band (when bands were asked for).")
     upper: list[float | None] | None = Field(None, description="Upper band (when bands were asked for).")
-    se: list[float | None] | None = Field(None, description="Pointwise standard error of the estimate (when bands were asked for).")
+    se: list[float | None] | None = Field(None, description="Pointwise standard error of `estimate` (when bands were asked for). The bands are centred on `band_center` when present, so `estimate ± z·se` is not the band.")
+    band_center: list[float | None] | None = Field(None, description="Centre of the bands when it is not `estimate`: the bias-corrected estimate (a local fit one degree higher, or degree 2 for local constant). Present when bands were asked for and centred there.")
 
 
 class FittedOut(_Out):
@@ -236,11 +242,11 @@ class PredictionOut(_Out):
     """Prediction at one new x."""
 
     x: float
-    estimate: float | None
-    lower: float | None = Field(None, description="Band for the curve at x (when bands were asked for).")
-    upper: float | None = Field(None, description="Band for the curve at x (when bands were asked for).")
-    interval_lower: float | None = Field(None, description="Prediction interval for a new observation at x (when bands were asked for).")
-    interval_upper: float | None = Field(None, description="Prediction interval for a new observation at x (when bands were asked for).")
+    estimate: float | None = Field(..., description="The curve's estimate at x; null where no data lies in the kernel window.")
+    lower: float | None = Field(None, description="Lower end of the band for the CURVE at x: the same band as curve.lower/curve.upper (method, level, pointwise or simultaneous as asked). Present when bands were asked for.")
+    upper: float | None = Field(None, description="Upper end of the band for the CURVE at x (see `lower`). Present when bands were asked for.")
+    interval_lower: float | None = Field(None, description="Lower end of the prediction interval for a NEW READING at x (curve uncertainty plus noise, at bands.level; wider than the band). Present when bands were asked for.")
+    interval_upper: float | None = Field(None, description="Upper end of the prediction interval for a NEW READING at x (see `interval_lower`). Present when bands were asked for.")
     extrapolated: bool = Field(..., description="True when x lies outside the data range: the estimate extends the local fit beyond the data and can be far off.")
 
 
@@ -270,7 +276,7 @@ class DiagnosticsOut(_Out):
 class WarningOut(_Out):
     """A caution about the result; `code` is stable, `message` is for a person."""
 
-    code: str = Field(..., description="Stable code, e.g. empty_window, extrapolation, selection_at_grid_edge, flat_selection_score, implausibly_rough, few_points, pointwise_bands, noise_not_estimable.")
+    code: str = Field(..., description="Stable code: " + "; ".join(f"`{code}`: {meaning}" for code, meaning in WARNING_CODES.items()), json_schema_extra={"enum": list(WARNING_CODES)})
     message: str
 
 
@@ -295,7 +301,7 @@ class BandwidthResponse(_Out):
 class FieldErrorOut(_Out):
     field: str = Field(..., description="Where the problem is, e.g. `y`, `bands.level`, `x[3]`.")
     message: str
-    type: str = Field(..., description="Stable error type, e.g. missing, finite_number, extra_forbidden.")
+    type: str = Field(..., description="Stable code: " + "; ".join(f"`{code}`: {meaning}" for code, meaning in FIELD_ERROR_CODES.items()), json_schema_extra={"enum": list(FIELD_ERROR_CODES)})
 
 
 class Problem(_Out):
@@ -320,7 +326,7 @@ class ProblemSlot(_Out):
 class BatchResponse(_Out):
     """One slot per series, in the order given."""
 
-    results: list[Union[SmoothResponse, ProblemSlot]]
+    results: Sequence[SmoothResponse | ProblemSlot]
 
 
 class KernelOut(_Out):
@@ -366,3 +372,15 @@ class Readiness(_Out):
     status: str = Field(description="`ready`.")
     workers_ready: int = Field(description="Worker processes up and serving.")
     workers: int = Field(description="Worker processes configured.")
+
+
+def _field_names(model: type[BaseModel]) -> tuple[str, ...]:
+    return tuple(model.model_fields)
+
+
+KNOWN_FIELDS: dict[str, dict[str, tuple[str, ...]]] = {
+    "SmoothRequest": {"": _field_names(SmoothRequest), "curve": _field_names(CurveSpec), "bands": _field_names(BandsSpec)},
+    "BandwidthRequest": {"": _field_names(BandwidthRequest)},
+    "BatchRequest": {"": _field_names(BatchRequest)},
+}
+"""Field names at each nested location of a request, for the suggestion of an ``unknown_field`` error."""

@@ -8,7 +8,7 @@ import time
 
 from starlette.requests import Request
 
-from .errors import ProblemError
+from service.contract.errors import ProblemError
 
 
 def check_json_content_type(request: Request) -> None:

@@ -124,7 +124,7 @@ def uvicorn_log_config(level: str = "info") -> dict[str, Any]:
     return {
         "version": 1,
         "disable_existing_loggers": False,
-        "formatters": {"json": {"()": "service.logs.JsonFormatter"}},
+        "formatters": {"json": {"()": "service.runtime.logs.JsonFormatter"}},
         "handlers": {"stderr": {"class": "logging.StreamHandler", "formatter": "json", "stream": "ext://sys.stderr"}},
         "loggers": {
             "uvicorn": {"handlers": ["stderr"], "level": level.upper(), "propagate": False},

@@ -17,9 +17,9 @@ from typing import Any
 from starlette.requests import ClientDisconnect
 from starlette.types import ASGIApp, Message, Receive, Scope, Send
 
-from . import logs
-from .errors import PROBLEM_MEDIA_TYPE, problem_bytes
-from .metrics import Metrics
+from service.contract.errors import PROBLEM_MEDIA_TYPE, problem_bytes
+from service.http.metrics import Metrics
+from service.runtime import logs
 
 access_log = logging.getLogger("bandwise.access")
 error_log = logging.getLogger("bandwise.error")

@@ -1,10 +1,10 @@
-"""Worker process: receives :class:`~service.jobs.Job` objects, sends back :class:`~service.jobs.Outcome`.
+"""Worker process: receives :class:`~service.contract.jobs.Job` objects, sends back :class:`~service.contract.jobs.Outcome`.
 
 Each worker owns one end of a pipe.  It parses, validates and computes in its
 own interpreter, so a heavy fit holds neither the event loop nor the GIL of
-the HTTP process.  This module stays light (the HTTP process imports it to
-name the target); the forkserver preloads :mod:`service.handlers` (and with it
-numpy and ``estimators``) once, so new workers fork in milliseconds.
+the HTTP process.  This module stays light (the composition root imports it
+to name the target); the forkserver preloads :mod:`service.worker.handlers`
+(and with it numpy and ``estimators``) once, so new workers fork in milliseconds.
 """
 
 from __future__ import annotations
@@ -14,8 +14,8 @@ import signal
 from multiprocessing.connection import Connection
 from typing import Any
 
-from .allocator import tune_allocator
-from .jobs import Job
+from service.contract.jobs import Job
+from service.runtime.allocator import tune_allocator
 
 
 def yield_to_http(nice: int) -> bool:
@@ -54,8 +54,8 @@ def worker_main(conn: Connection, config: dict[str, Any]) -> None:
     signal.signal(signal.SIGINT, signal.SIG_IGN)
     tune_allocator()
     yield_to_http(int(config.get("worker_nice", 0)))
-    from . import handlers
-    from .logs import configure_logging
+    from service.runtime.logs import configure_logging
+    from service.worker import handlers
 
     configure_logging(config.get("log_level", "info"))
     ctx = handlers.JobContext(config["limits"], config["gzip_min_bytes"], config["gzip_level"])

@@ -9,14 +9,14 @@ import time
 from starlette.requests import Request
 from starlette.responses import Response
 
-from .auth import KeyChecker
-from .errors import PROBLEM_MEDIA_TYPE, ProblemError
-from .jobs import Job, Outcome
-from .limits import RateLimiter, check_json_content_type, read_body, retry_after
-from .metrics import Metrics
-from .observability import ServiceCounters, request_id_of
-from .pool import DeadlineExceeded, Overloaded, PoolClosed, WorkerLost, WorkerPool
-from .settings import Settings
+from service.contract.errors import PROBLEM_MEDIA_TYPE, ProblemError
+from service.contract.jobs import Job, Outcome, WorkerEntry
+from service.http.auth import KeyChecker
+from service.http.limits import RateLimiter, check_json_content_type, read_body, retry_after
+from service.http.metrics import Metrics
+from service.http.observability import ServiceCounters, request_id_of
+from service.http.pool import DeadlineExceeded, Overloaded, PoolClosed, WorkerLost, WorkerPool
+from service.runtime.settings import Settings
 
 log = logging.getLogger("bandwise.service")
 
@@ -30,9 +30,11 @@ class Service:
     ----------
     settings : Settings
         Limits, pool size, security options.
+    entry : WorkerEntry
+        How to start a worker process (given by :func:`service.app.create_app`).
     """
 
-    def __init__(self, settings: Settings) -> None:
+    def __init__(self, settings: Settings, entry: WorkerEntry) -> None:
         self.settings = settings
         self.metrics = Metrics()
         self.counters = ServiceCounters()
@@ -48,6 +50,7 @@ class Service:
                 "log_level": settings.log_level,
                 "worker_nice": settings.worker_nice,
             },
+            entry,
             on_event=self.metrics.on_pool_event,
         )
         self.metrics.bind_pool(lambda: self.pool.busy, lambda: self.pool.waiting, lambda: self.pool.ready_count)

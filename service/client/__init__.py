@@ -13,7 +13,7 @@
 have the same methods and give the same results.  Both are built on httpx and
 are context managers.
 
-Results are the service's own response models (:mod:`service.models`), so a
+Results are the service's own response models (:mod:`service.contract.models`), so a
 result has exactly the fields of the JSON contract; the subclasses here only
 add ``arrays()`` helpers and the ``request_id`` of the answer.  Fields the
 service adds in a later version are ignored rather than rejected.
@@ -43,39 +43,55 @@ from __future__ import annotations
 
 import asyncio
 import difflib
-import email.utils
-import inspect
 import logging
-import math
 import random
 import time
 import uuid
 from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass
-from datetime import datetime, timezone
-from typing import Any, TypeVar, Union
+from typing import Any, TypeVar
 
 import httpx
 import numpy as np
 import orjson
-from pydantic import BaseModel, PrivateAttr, ValidationError
+from pydantic import BaseModel, ValidationError
 
-from . import __version__
-from .errors import field_errors
-from .models import (
-    BandwidthOut,
-    BandwidthRequest,
-    BandwidthResponse,
-    BatchResponse,
-    CurveOut,
-    FieldErrorOut,
-    FittedOut,
-    KernelOut,
-    KernelsResponse,
-    ProblemSlot,
-    SmoothRequest,
-    SmoothResponse,
+from service import __version__
+from service.client.errors import (
+    BandwiseError,
+    ConnectionFailed,
+    DeadlineExceeded,
+    Overloaded,
+    PayloadTooLarge,
+    ServerError,
+    Timeout,
+    Unauthorized,
+    UnexpectedResponse,
+    UnsuitableData,
+    ValidationFailed,
+    error_from_problem,
+    type_title,
 )
+from service.client.results import (
+    _CAN_IGNORE_EXTRA,
+    BandwidthResult,
+    BatchResult,
+    CurveArrays,
+    CurveResult,
+    FittedArrays,
+    FittedResult,
+    KernelsResult,
+    PredictionArrays,
+    SelectionArrays,
+    SelectionResult,
+    SmoothResult,
+    _Answer,
+    to_numpy,
+)
+from service.client.retry import RetryPolicy, parse_retry_after
+from service.contract.errors import REASON_PHRASES
+from service.contract.field_errors import RENAMED_FIELDS, field_errors
+from service.contract.models import BandwidthRequest, FieldErrorOut, SmoothRequest
 
 __all__ = [
     "AsyncBandwiseClient",
@@ -85,6 +101,13 @@ __all__ = [
     "BatchResult",
     "ConnectionFailed",
     "CurveArrays",
+    "CurveResult",
+    "FittedArrays",
+    "FittedResult",
+    "SelectionArrays",
+    "SelectionResult",
+    "error_from_problem",
+    "type_title",
     "DeadlineExceeded",
     "KernelsResult",
     "Overloaded",
@@ -104,514 +127,11 @@ __all__ = [
 
 log = logging.getLogger("bandwise.client")
 
-ArrayLike = Union[Sequence[float], np.ndarray]
+ArrayLike = Sequence[float] | np.ndarray
 DEFAULT_TIMEOUT = httpx.Timeout(60.0, connect=5.0)
 USER_AGENT = f"bandwise-client/{__version__}"
 
 # Per-call ``extra="ignore"`` (pydantic >= 2.12) keeps results readable when a
-# newer service adds response fields; older pydantic validates strictly.
-_CAN_IGNORE_EXTRA = "extra" in inspect.signature(BaseModel.model_validate).parameters
-
-
-# ------------------------------------------------------------------ arrays
-
-
-def to_numpy(values: Iterable[float | None] | None) -> np.ndarray:
-    """A float64 array of ``values`` with JSON ``null`` (None) as NaN.
-
-    Parameters
-    ----------
-    values : iterable of float or None, or None
-        E.g. ``result.curve.estimate``.  ``None`` gives an empty array.
-    """
-    if values is None:
-        return np.empty(0, dtype=float)
-    # numpy turns None into NaN when the dtype is float.
-    return np.array(values if isinstance(values, list) else list(values), dtype=float)
-
-
-@dataclass(frozen=True)
-class CurveArrays:
-    """The curve as numpy arrays; band arrays are None when bands were not asked for."""
-
-    x: np.ndarray
-    estimate: np.ndarray
-    lower: np.ndarray | None
-    upper: np.ndarray | None
-    se: np.ndarray | None
-
-
-@dataclass(frozen=True)
-class FittedArrays:
-    """Fitted values and residuals at the data points, in the order given."""
-
-    estimate: np.ndarray
-    residuals: np.ndarray
-
-
-@dataclass(frozen=True)
-class PredictionArrays:
-    """Predictions as columns; band and interval columns are None when not in the answer."""
-
-    x: np.ndarray
-    estimate: np.ndarray
-    lower: np.ndarray | None
-    upper: np.ndarray | None
-    interval_lower: np.ndarray | None
-    interval_upper: np.ndarray | None
-    extrapolated: np.ndarray
-
-
-@dataclass(frozen=True)
-class SelectionArrays:
-    """Candidate bandwidths and their scores (NaN where a candidate could not be scored)."""
-
-    candidates: np.ndarray
-    scores: np.ndarray
-
-
-def _optional(values: Iterable[float | None] | None) -> np.ndarray | None:
-    return None if values is None else to_numpy(values)
-
-
-# ----------------------------------------------------------------- results
-
-
-class _Answer(BaseModel):
-    """Mixin: the ``X-Request-ID`` of the answer a result came from."""
-
-    _request_id: str | None = PrivateAttr(default=None)
-
-    @property
-    def request_id(self) -> str | None:
-        """Request id of the answer (quote it when reporting a problem)."""
-        return self._request_id
-
-    def __eq__(self, other: object) -> bool:
-        # Results are equal when their contents are; which request brought them does not count.
-        if not isinstance(other, BaseModel):
-            return NotImplemented
-        return type(self) is type(other) and self.__dict__ == other.__dict__ and self.__pydantic_extra__ == other.__pydantic_extra__
-
-    __hash__ = None  # type: ignore[assignment]
-
-
-class CurveResult(CurveOut):
-    """:class:`service.models.CurveOut` with a numpy helper."""
-
-    def arrays(self) -> CurveArrays:
-        """The curve as float arrays (NaN where the estimate or band is null)."""
-        return CurveArrays(to_numpy(self.x), to_numpy(self.estimate), _optional(self.lower), _optional(self.upper), _optional(self.se))
-
-
-class FittedResult(FittedOut):
-    """:class:`service.models.FittedOut` with a numpy helper."""
-
-    def arrays(self) -> FittedArrays:
-        """Fitted values and residuals as float arrays."""
-        return FittedArrays(to_numpy(self.estimate), to_numpy(self.residuals))
-
-
-class SelectionResult(BandwidthOut):
-    """:class:`service.models.BandwidthOut` with a numpy helper."""
-
-    def arrays(self) -> SelectionArrays | None:
-        """Candidates and scores as float arrays; None when the bandwidth was given, not selected."""
-        if self.candidates is None or self.scores is None:
-            return None
-        return SelectionArrays(to_numpy(self.candidates), to_numpy(self.scores))
-
-
-class SmoothResult(SmoothResponse, _Answer):
-    """Answer of ``POST /v1/smooth``: a :class:`service.models.SmoothResponse`.
-
-    ``result.bandwidth.value``, ``result.curve.estimate``, ``result.predictions[0].extrapolated``,
-    ``result.diagnostics.effective_df`` and ``result.warnings`` are the fields of
-    the contract; ``result.curve.arrays()`` and :meth:`prediction_arrays` give
-    numpy arrays.  Bands are pointwise unless ``diagnostics.bands.simultaneous``.
-    """
-
-    bandwidth: SelectionResult
-    curve: CurveResult
-    fitted: FittedResult | None = None
-
-    def prediction_arrays(self) -> PredictionArrays:
-        """The ``predictions`` list as columns (empty arrays when none were asked for)."""
-        rows = self.predictions
-
-        def column(name: str) -> np.ndarray | None:
-            if not any(name in row.model_fields_set for row in rows):
-                return None
-            return to_numpy(getattr(row, name) for row in rows)
-
-        return PredictionArrays(
-            x=to_numpy(row.x for row in rows),
-            estimate=to_numpy(row.estimate for row in rows),
-            lower=column("lower"),
-            upper=column("upper"),
-            interval_lower=column("interval_lower"),
-            interval_upper=column("interval_upper"),
-            extrapolated=np.array([row.extrapolated for row in rows], dtype=bool),
-        )
-
-    def warning_codes(self) -> list[str]:
-        """The stable ``code`` of every warning, in order."""
-        return [w.code for w in self.warnings]
-
-
-class BandwidthResult(BandwidthResponse, _Answer):
-    """Answer of ``POST /v1/bandwidth``: a :class:`service.models.BandwidthResponse`."""
-
-    bandwidth: SelectionResult
-
-
-class KernelsResult(KernelsResponse, _Answer):
-    """Answer of ``GET /v1/kernels``: a :class:`service.models.KernelsResponse`."""
-
-    def by_name(self) -> dict[str, KernelOut]:
-        """The kernels keyed by name."""
-        return {k.name: k for k in self.kernels}
-
-
-class BatchResult(BatchResponse, _Answer):
-    """Answer of ``POST /v1/smooth/batch``: one slot per series, in order.
-
-    A slot is a :class:`SmoothResult`, or a :class:`service.models.ProblemSlot`
-    when that series alone failed; :meth:`errors` turns those into exceptions.
-    """
-
-    results: list[Union[SmoothResult, ProblemSlot]]
-
-    @property
-    def ok(self) -> bool:
-        """True when every series was smoothed."""
-        return not any(isinstance(slot, ProblemSlot) for slot in self.results)
-
-    def succeeded(self) -> dict[int, SmoothResult]:
-        """The smoothed series, keyed by their index in the request."""
-        return {i: slot for i, slot in enumerate(self.results) if isinstance(slot, SmoothResult)}
-
-    def errors(self) -> dict[int, BandwiseError]:
-        """The failed series, keyed by index, each as the exception a single call would raise."""
-        return {
-            i: error_from_problem(slot.problem.model_dump(exclude_none=True), slot.problem.status, series=i, request_id=self.request_id)
-            for i, slot in enumerate(self.results)
-            if isinstance(slot, ProblemSlot)
-        }
-
-    def raise_for_errors(self) -> None:
-        """Raise the error of the first failed series, if any."""
-        for error in self.errors().values():
-            raise error
-
-
-# ------------------------------------------------------------------ errors
-
-
-class BandwiseError(Exception):
-    """Base of every error this client raises.
-
-    Attributes
-    ----------
-    status : int or None
-        HTTP status of the answer; None when nothing was answered (refused
-        before sending, connection failure, timeout).
-    title, detail, type : str
-        RFC 9457 problem details: ``type`` names the kind of problem (a
-        ``/problems/<slug>`` path on the service), ``title`` is its summary,
-        ``detail`` explains this occurrence.
-    errors : list of FieldErrorOut
-        Offending fields (validation failures), each with ``field``, ``message`` and ``type``.
-    request_id : str or None
-        ``X-Request-ID`` of the failed request; quote it when reporting a problem.
-    instance : str or None
-        The request path (``#series[i]`` for one series of a batch).
-    retry_after : float or None
-        Seconds the service asked to wait (429/503).
-    attempts : int
-        Requests sent for this call (1 without retries).
-    problem : dict
-        The problem document as received (including any extension members).
-    """
-
-    hint = ""
-
-    def __init__(
-        self,
-        detail: str,
-        *,
-        status: int | None = None,
-        title: str = "",
-        type: str = "about:blank",
-        errors: Sequence[FieldErrorOut] = (),
-        request_id: str | None = None,
-        instance: str | None = None,
-        retry_after: float | None = None,
-        attempts: int = 0,
-        problem: Mapping[str, Any] | None = None,
-        note: str = "",
-    ) -> None:
-        self.status = status
-        self.title = title or type_title(status)
-        self.detail = detail
-        self.type = type
-        self.errors = list(errors)
-        self.request_id = request_id
-        self.instance = instance
-        self.retry_after = retry_after
-        self.attempts = attempts
-        self.problem = dict(problem or {})
-        self.note = note
-        super().__init__(self._message())
-
-    def __reduce__(self) -> tuple[Any, ...]:
-        # Keyword-only fields: rebuild from the instance dict (pickling, multiprocessing).
-        return (_rebuild_error, (type(self), dict(self.__dict__)))
-
-    @property
-    def slug(self) -> str:
-        """The last part of ``type`` (e.g. ``validation-error``), or an empty string."""
-        return self.type.rsplit("/", 1)[-1] if self.type.startswith("/problems/") else ""
-
-    def _message(self) -> str:
-        head = f"{self.status} {self.title}" if self.status is not None else self.title
-        lines = [f"{head}: {self.detail}" if head else self.detail]
-        for error in self.errors[:20]:
-            lines.append(f"  - {error.field}: {error.message}")
-        if len(self.errors) > 20:
-            lines.append(f"  ... and {len(self.errors) - 20} more")
-        if self.note:
-            lines.append(self.note)
-        if self.hint:
-            lines.append(self.hint)
-        if self.request_id:
-            lines.append(f"(request id {self.request_id})")
-        return "\n".join(lines)
-
-
-def _rebuild_error(cls: type[BandwiseError], state: dict[str, Any]) -> BandwiseError:
-    error = cls.__new__(cls)
-    error.__dict__.update(state)
-    Exception.__init__(error, error._message())
-    return error
-
-
-class ValidationFailed(BandwiseError):
-    """The request was refused as invalid (400 or 422), or refused by the client before sending (``status`` None)."""
-
-    hint = "Fix the fields listed above; the request is not retried."
-
-
-class UnsuitableData(ValidationFailed):
-    """The request was valid but the data cannot be fitted as asked (422 ``unsuitable-data``)."""
-
-    hint = "The detail says what the data lacks for this fit; change the data or the options."
-
-
-class Unauthorized(BandwiseError):
-    """The service wants an API key and none, or a wrong one, was sent (401 / 403)."""
-
-    hint = "Pass api_key=... to the client (it is sent as Authorization: Bearer <key>) and check that the service accepts that key."
-
-
-class PayloadTooLarge(BandwiseError):
-    """The body is larger than the service accepts (413)."""
-
-    hint = "Split the data over several requests (fewer points per series, fewer series per batch)."
-
-
-class Overloaded(BandwiseError):
-    """The service shed load (429 rate limit or 503) and retries did not get through."""
-
-    hint = "Retry later, lower the request rate, or allow more time with RetryPolicy(total=...)."
-
-
-class DeadlineExceeded(Overloaded):
-    """The work took longer than the service's deadline and was stopped (503 ``deadline-exceeded``); not retried."""
-
-    hint = "The same request would run out of time again: use fewer points, fewer bootstrap replicates or a fixed bandwidth."
-
-
-class ServerError(BandwiseError):
-    """The service (or a gateway in front of it) failed (5xx other than 503)."""
-
-    hint = "This is not caused by the request; report it with the request id."
-
-
-class ConnectionFailed(BandwiseError):
-    """No answer could be had: connection refused or reset, DNS failure, connect timeout."""
-
-    hint = "Check base_url and that the service is running and reachable."
-
-
-class Timeout(BandwiseError):
-    """The service did not answer within the client's timeout."""
-
-    hint = "The work may be heavy: use fewer points or replicates or a fixed bandwidth, or pass a larger timeout=."
-
-
-class UnexpectedResponse(BandwiseError):
-    """The answer is not what the Bandwise contract describes (wrong base URL, a proxy's error page, version skew)."""
-
-    hint = "Check that base_url points at a Bandwise service."
-
-
-_TITLES = {400: "Malformed request", 401: "Unauthorized", 403: "Forbidden", 404: "Not found", 413: "Request body too large", 422: "Invalid request", 429: "Too many requests", 500: "Internal error", 502: "Bad gateway", 503: "Service unavailable", 504: "Gateway timeout"}
-
-
-def type_title(status: int | None) -> str:
-    """A short title for an HTTP status (used when the answer carries no problem document)."""
-    if status is None:
-        return ""
-    return _TITLES.get(status, f"HTTP {status}")
-
-
-def _error_class(status: int, slug: str) -> type[BandwiseError]:
-    if status == 422 and slug == "unsuitable-data":
-        return UnsuitableData
-    if status in (400, 422):
-        return ValidationFailed
-    if status in (401, 403):
-        return Unauthorized
-    if status == 413:
-        return PayloadTooLarge
-    if status == 503 and slug == "deadline-exceeded":
-        return DeadlineExceeded
-    if status in (429, 503):
-        return Overloaded
-    if status >= 500:
-        return ServerError
-    return BandwiseError
-
-
-def error_from_problem(doc: Mapping[str, Any], status: int, *, series: int | None = None, **extra: Any) -> BandwiseError:
-    """The exception for a problem document answered with ``status``."""
-    errors = []
-    for item in doc.get("errors") or ():
-        if isinstance(item, Mapping):
-            errors.append(FieldErrorOut(field=str(item.get("field", "")), message=str(item.get("message", "")), type=str(item.get("type", ""))))
-    kind = str(doc.get("type") or "about:blank")
-    slug = kind.rsplit("/", 1)[-1] if kind.startswith("/problems/") else ""
-    detail = str(doc.get("detail") or type_title(status))
-    if series is not None:
-        detail = f"series {series}: {detail}"
-    return _error_class(status, slug)(
-        detail,
-        status=status,
-        title=str(doc.get("title") or type_title(status)),
-        type=kind,
-        errors=errors,
-        request_id=extra.pop("request_id", None) or (str(doc["request_id"]) if doc.get("request_id") else None),
-        instance=str(doc["instance"]) if doc.get("instance") else None,
-        problem=doc,
-        **extra,
-    )
-
-
-# ------------------------------------------------------------------- retry
-
-
-@dataclass(frozen=True)
-class RetryPolicy:
-    """When and how long to retry.
-
-    Retrying is safe for every Bandwise call: each is a pure function of its
-    request (nothing is stored, bootstrap bands are seeded), so a repeated
-    ``POST`` cannot change anything and gets the same answer.
-
-    Parameters
-    ----------
-    attempts : int, default 4
-        Most requests sent per call, the first included (1 turns retries off).
-    backoff : float, default 0.25
-        Base of the exponential backoff, in seconds.
-    max_backoff : float, default 8.0
-        Cap of one backoff wait, in seconds.
-    total : float, default 30.0
-        Most seconds a call may spend, counted from its start, before another
-        attempt is begun: a wait that would end past it is not started and
-        the last error is raised.  Each attempt is bounded by the client's
-        timeout as well, so a call ends within about ``total + timeout``.
-    statuses : frozenset of int, default {429, 502, 503}
-        Answers to retry.  502 is how a gateway reports a replica it could
-        not reach.  A 503 ``deadline-exceeded`` is never retried: the same
-        work would run out of time again.
-    retry_timeouts : bool, default False
-        Also retry when the service did not answer within the read timeout.
-        Off by default: the service may still be working on the request.
-
-    Notes
-    -----
-    Waits follow exponential backoff with full jitter: before retry ``k``
-    (``k = 0, 1, ...``) the client sleeps a uniform random time in
-    ``[0, min(max_backoff, backoff * 2**k)]``.  When the answer carries
-    ``Retry-After`` the client waits that long plus the jittered backoff, so
-    it never returns early and clients told the same time do not all return
-    at once.
-    """
-
-    attempts: int = 4
-    backoff: float = 0.25
-    max_backoff: float = 8.0
-    total: float = 30.0
-    statuses: frozenset[int] = frozenset({429, 502, 503})
-    retry_timeouts: bool = False
-
-    def __post_init__(self) -> None:
-        if self.attempts < 1:
-            raise ValueError("RetryPolicy.attempts must be >= 1 (1 means no retries)")
-        if not (self.backoff >= 0 and self.max_backoff >= 0 and self.total >= 0):
-            raise ValueError("RetryPolicy.backoff, max_backoff and total must be >= 0 seconds")
-        object.__setattr__(self, "statuses", frozenset(self.statuses))
-
-    def backoff_cap(self, retry: int) -> float:
-        """Upper end of the wait before retry number ``retry`` (0-based)."""
-        return min(self.max_backoff, self.backoff * 2.0 ** min(retry, 60))
-
-    def delay(self, retry: int, rng: random.Random) -> float:
-        """Full-jitter wait before retry number ``retry`` (0-based), in seconds."""
-        return rng.uniform(0.0, self.backoff_cap(retry))
-
-
-def parse_retry_after(value: str | None, now: datetime | None = None) -> float | None:
-    """Seconds to wait according to a ``Retry-After`` header value.
-
-    Parameters
-    ----------
-    value : str or None
-        Either delay-seconds (``"120"``) or an HTTP-date
-        (``"Wed, 21 Oct 2026 07:28:00 GMT"``), RFC 9110 section 10.2.3.
-    now : datetime, optional
-        The current time (UTC) for HTTP-dates; defaults to the clock.
-
-    Returns
-    -------
-    float or None
-        Seconds, at least 0 (a date in the past means "now"); None when the
-        header is missing or unreadable.
-    """
-    if value is None:
-        return None
-    text = value.strip()
-    if not text:
-        return None
-    try:
-        seconds = float(text)
-    except ValueError:
-        pass
-    else:
-        return max(0.0, seconds) if math.isfinite(seconds) else None
-    try:
-        when = email.utils.parsedate_to_datetime(text)
-    except (TypeError, ValueError, IndexError):
-        return None
-    if when is None:
-        return None
-    if when.tzinfo is None:
-        when = when.replace(tzinfo=timezone.utc)
-    current = now if now is not None else datetime.now(timezone.utc)
-    return max(0.0, (when - current).total_seconds())
-
 
 def _problem_slug(response: httpx.Response) -> str:
     """The problem type slug of an error answer, or an empty string."""
@@ -728,22 +248,22 @@ def _numbers(values: Any, name: str, errors: list[dict[str, str]]) -> np.ndarray
         errors.append({"field": name, "message": message, "type": kind})
 
     if values is None or isinstance(values, (str, bytes, Mapping)):
-        fail(f"must be a list or array of numbers, got {type(values).__name__}", "list_type")
+        fail(f"must be a list or array of numbers, got {type(values).__name__}", "wrong_type")
         return None
     try:
         array = np.asarray(values)
     except (ValueError, TypeError):
-        fail("must be a flat list of numbers", "list_type")
+        fail("must be a flat list of numbers", "wrong_type")
         return None
     if array.ndim != 1:
-        fail(f"must be one-dimensional, got shape {array.shape}", "list_type")
+        fail(f"must be one-dimensional, got shape {array.shape}", "wrong_type")
         return None
     if array.size == 0:
         fail("is empty: at least 2 points are needed", "too_short")
         return None
     if array.dtype.kind not in "iuf":
         bad = next((i for i, v in enumerate(array.tolist()) if isinstance(v, bool) or not isinstance(v, (int, float))), 0)
-        fail(f"must hold numbers only; {name}[{bad}] is {array.tolist()[bad]!r}", "float_type")
+        fail(f"must hold numbers only; {name}[{bad}] is {array.tolist()[bad]!r}", "wrong_type")
         return None
     array = np.ascontiguousarray(array, dtype=np.float64)
     finite = np.isfinite(array)
@@ -752,7 +272,7 @@ def _numbers(values: Any, name: str, errors: list[dict[str, str]]) -> np.ndarray
         fail(
             f"holds {_plural(count, 'non-finite value')} (NaN or infinity), the first at index {_first(~finite)}; "
             "drop or fill those points before sending",
-            "finite_number",
+            "not_finite",
         )
         return None
     return array
@@ -774,7 +294,7 @@ def _check_options(options: Mapping[str, Any], model: type[BaseModel], prefix: s
         model.model_validate(probe)
     except ValidationError as exc:
         for item in field_errors(exc.errors(include_url=False, include_input=False), prefix):
-            if item["type"] == "extra_forbidden":
+            if item["type"] == "unknown_field" and item["field"].rsplit(".", 1)[-1] not in RENAMED_FIELDS:
                 item["message"] = _unknown_option_message(item["field"].rsplit(".", 1)[-1], model)
             errors.append(item)
 
@@ -796,14 +316,14 @@ def _series_body(x: Any, y: Any, options: Mapping[str, Any], model: type[BaseMod
     if xa is not None and xa.size < 2:
         errors.append({"field": name("x"), "message": f"at least 2 points are needed, got {xa.size}", "type": "too_short"})
     if xa is not None and ya is not None and ya.size != xa.size:
-        errors.append({"field": name("y"), "message": f"y has {ya.size} values but x has {xa.size}", "type": "value_error"})
+        errors.append({"field": name("y"), "message": f"y has {ya.size} values but x has {xa.size}", "type": "invalid"})
     if wa is not None:
         if xa is not None and wa.size != xa.size:
-            errors.append({"field": name("weights"), "message": f"weights has {wa.size} values but x has {xa.size}", "type": "value_error"})
+            errors.append({"field": name("weights"), "message": f"weights has {wa.size} values but x has {xa.size}", "type": "invalid"})
         elif (wa < 0).any():
-            errors.append({"field": name("weights"), "message": f"weights must be >= 0; {name('weights')}[{_first(wa < 0)}] is {wa[_first(wa < 0)]:g}", "type": "greater_than_equal"})
+            errors.append({"field": name("weights"), "message": f"weights must be >= 0; {name('weights')}[{_first(wa < 0)}] is {wa[_first(wa < 0)]:g}", "type": "too_small"})
         elif not (wa > 0).any():
-            errors.append({"field": name("weights"), "message": "at least one weight must be > 0", "type": "value_error"})
+            errors.append({"field": name("weights"), "message": "at least one weight must be > 0", "type": "invalid"})
     plain = _to_json_ready(options)
     if validate:
         _check_options(plain, model, prefix, errors, weights is not None)
@@ -818,7 +338,7 @@ def _series_body(x: Any, y: Any, options: Mapping[str, Any], model: type[BaseMod
 
 def _refuse(errors: list[dict[str, str]], what: str) -> ValidationFailed:
     items = [FieldErrorOut(**e) for e in errors]
-    return ValidationFailed(f"the {what} has invalid fields and was not sent", title="Invalid request", type="/problems/validation-error", errors=items)
+    return ValidationFailed(f"the {what} has invalid fields and was not sent", title=REASON_PHRASES[422], type="/problems/validation-error", errors=items)
 
 
 @dataclass(frozen=True)
@@ -967,12 +487,12 @@ class _ClientBase:
         for index, item in enumerate(series):
             prefix = f"series[{index}]"
             if not isinstance(item, Mapping):
-                errors.append({"field": prefix, "message": f"must be a mapping with x, y and options, got {type(item).__name__}", "type": "dict_type"})
+                errors.append({"field": prefix, "message": f"must be a mapping with x, y and options, got {type(item).__name__}", "type": "wrong_type"})
                 continue
             options = {k: v for k, v in item.items() if k not in ("x", "y")}
             for key in ("x", "y"):
                 if key not in item:
-                    errors.append({"field": f"{prefix}.{key}", "message": "Field required", "type": "missing"})
+                    errors.append({"field": f"{prefix}.{key}", "message": "this field is required; add it.", "type": "missing"})
             if "x" in item and "y" in item:
                 bodies.append(_series_body(item["x"], item["y"], options, SmoothRequest, prefix, errors, self.validate))
         if not bodies and not errors:
@@ -1068,7 +588,7 @@ class BandwiseClient(_ClientBase):
             All optional; the service's defaults apply to what is not given:
             ``weights`` (array >= 0), ``kernel`` ("gaussian"), ``degree``
             (0, 1 or 2; default 1), ``bandwidth`` (number > 0 or "auto"),
-            ``selector`` ("gcv"), ``rule`` ("min" or "one_se"), ``candidates``,
+            ``selector`` ("gcv"), ``rule`` ("min" or "one_se"), ``candidate_count``,
             ``bandwidth_min``, ``bandwidth_max``, ``engine``, ``curve``
             (``{"points": n}`` or ``{"at": [...]}``), ``predict_at`` (array),
             ``bands`` (``{"method", "level", "replicates", "seed",
@@ -1102,7 +622,7 @@ class BandwiseClient(_ClientBase):
         """Select a bandwidth only (``POST /v1/bandwidth``), with every candidate's score.
 
         Options are the data and selection options of :meth:`smooth`: ``weights``,
-        ``kernel``, ``degree``, ``selector``, ``rule``, ``candidates``,
+        ``kernel``, ``degree``, ``selector``, ``rule``, ``candidate_count``,
         ``bandwidth_min``, ``bandwidth_max``.  Automatic bandwidths can be
         implausible: look at ``result.bandwidth.scores`` and ``result.warnings``.
         """
@@ -1175,4 +695,5 @@ class AsyncBandwiseClient(_ClientBase):
     async def kernels(self) -> KernelsResult:
         """Kernels and constants; see :meth:`BandwiseClient.kernels`."""
         return await self._send(self._prepare_kernels())  # type: ignore[no-any-return]
+
 

@@ -10,9 +10,10 @@ from __future__ import annotations
 
 import gzip
 import logging
+import re
 import time
 import traceback
-from collections.abc import Callable, Iterable
+from collections.abc import Callable, Iterable, Sequence
 from typing import Any
 
 import numpy as np
@@ -22,14 +23,15 @@ from pydantic import ValidationError
 import estimators
 from estimators import KERNELS, fit, select_bandwidth
 from estimators.demo import DEMOS
-
-from .errors import PROBLEM_MEDIA_TYPE, ProblemError, field_errors, problem_bytes, problem_document
-from .jobs import Job, Outcome
-from .models import BandsSpec, BandwidthRequest, BatchEnvelope, SmoothRequest
+from service.contract.errors import PROBLEM_MEDIA_TYPE, ProblemError, problem_bytes, problem_document
+from service.contract.field_errors import field_errors
+from service.contract.jobs import Job, Outcome
+from service.contract.models import KNOWN_FIELDS, BandsSpec, BandwidthRequest, BatchRequest, SmoothRequest
 
 log = logging.getLogger("bandwise.worker")
 
 _DUMP_OPTIONS = orjson.OPT_SERIALIZE_NUMPY
+_BAND_CAUTIONS_PASSED = frozenset({"noise_not_estimable", "degree_reduced"})
 
 
 class JobContext:
@@ -45,7 +47,7 @@ class JobContext:
 # ----------------------------------------------------------------- helpers
 
 
-def _array(values: Iterable[float] | None) -> np.ndarray | None:
+def _array(values: Sequence[float] | None) -> np.ndarray | None:
     if values is None:
         return None
     return np.fromiter(values, dtype=float, count=len(values))  # validated floats; a little faster than asarray
@@ -98,12 +100,14 @@ def _bandwidth_object(value: float, selection: Any) -> dict[str, Any]:
     }
 
 
-def _validation_problem(error: ValidationError, detail: str) -> ProblemError:
+def _validation_problem(error: ValidationError, detail: str, model: type[Any]) -> ProblemError:
     raw = error.errors(include_url=False, include_input=False)
-    if any(e.get("type") == "json_invalid" for e in raw):
-        message = next(str(e.get("msg")) for e in raw if e.get("type") == "json_invalid")
-        return ProblemError("malformed-request", message)
-    return ProblemError("validation-error", detail, errors=field_errors(raw))
+    broken = next((e for e in raw if e.get("type") == "json_invalid"), None)
+    if broken is not None:
+        where = re.search(r"line (\d+) column (\d+)", str((broken.get("ctx") or {}).get("error", "")))
+        near = f" near line {where.group(1)}, column {where.group(2)}" if where else ""
+        return ProblemError("malformed-request", f"The body is not valid JSON{near} (a syntax error, a bad encoding, or nesting too deep); send one JSON object.")
+    return ProblemError("validation-error", detail, errors=field_errors(raw, known_fields=KNOWN_FIELDS[model.__name__]))
 
 
 # ----------------------------------------------------------------- smoothing
@@ -169,31 +173,35 @@ def _smooth_arrays(req: SmoothRequest, x: Any, y: Any, weights: Any, limits: dic
     px = _array(req.predict_at)
     bands: BandsSpec | None = req.bands
 
-    estimate = np.ascontiguousarray(s.predict(cx), dtype=float)
+    estimate = np.ascontiguousarray(s.predict(cx), dtype=float)  # curve.se, when asked, is the SE of this estimate
     curve: dict[str, Any] = {"x": cx, "estimate": estimate}
-    p_est = np.asarray(s.predict(px), dtype=float) if px is not None else None
 
     p_lower = p_upper = p_ilow = p_ihigh = None
     band_info = None
     if bands is not None:
-        kwargs = {"level": bands.level, "method": bands.method, "replicates": bands.replicates, "seed": bands.seed, "simultaneous": bands.simultaneous}
         if px is not None and not bands.simultaneous:
             # Pointwise bands at curve and prediction points from one set of replicates.
-            both = s.bands(np.concatenate([cx, px]), **kwargs)
+            both = s.bands(np.concatenate([cx, px]), bands.level, bands.method, bands.replicates, bands.seed, bands.simultaneous)
             band_cautions = both.warnings
             m = cx.size
-            curve["lower"], curve["upper"], curve["se"] = (np.ascontiguousarray(a[:m], dtype=float) for a in (both.lower, both.upper, both.se))
+            curve["lower"], curve["upper"] = (np.ascontiguousarray(a[:m], dtype=float) for a in (both.lower, both.upper))
+            centre, centred_elsewhere = both.estimate[:m], both.bias_corrected
             p_lower, p_upper = np.asarray(both.lower[m:]), np.asarray(both.upper[m:])
         else:
-            b = s.bands(cx, **kwargs)
+            b = s.bands(cx, bands.level, bands.method, bands.replicates, bands.seed, bands.simultaneous)
             band_cautions = b.warnings
-            curve["lower"], curve["upper"], curve["se"] = (np.ascontiguousarray(a, dtype=float) for a in (b.lower, b.upper, b.se))
+            curve["lower"], curve["upper"] = (np.ascontiguousarray(a, dtype=float) for a in (b.lower, b.upper))
+            centre, centred_elsewhere = b.estimate, b.bias_corrected
             if px is not None:
-                pb = s.bands(px, **kwargs)
+                pb = s.bands(px, bands.level, bands.method, bands.replicates, bands.seed, bands.simultaneous)
                 p_lower, p_upper = np.asarray(pb.lower), np.asarray(pb.upper)
+        curve["se"] = np.ascontiguousarray(s.standard_error(cx), dtype=float)
+        if centred_elsewhere:
+            curve["band_center"] = np.ascontiguousarray(centre, dtype=float)
         if px is not None:
             p_ilow, p_ihigh = (np.asarray(a, dtype=float) for a in s.prediction_interval(px, level=bands.level))
-        cautions.extend(c for c in band_cautions if c.code == "noise_not_estimable")
+        # The worker words pointwise_bands, empty_window and extrapolation itself, per curve and prediction points.
+        cautions.extend(c for c in band_cautions if c.code in _BAND_CAUTIONS_PASSED)
         bootstrap = bands.method != "analytic"
         band_info = {
             "method": bands.method,
@@ -213,15 +221,16 @@ def _smooth_arrays(req: SmoothRequest, x: Any, y: Any, weights: Any, limits: dic
 
     predictions: list[dict[str, Any]] = []
     if px is not None:
+        p_est = np.asarray(s.predict(px), dtype=float)
         extrapolated = np.asarray(s.extrapolated(px), dtype=bool)
         columns: list[tuple[str, list[Any]]] = [("x", px.tolist()), ("estimate", _nullable(p_est))]
-        if p_lower is not None:
+        if p_lower is not None and p_upper is not None:
             columns += [("lower", _nullable(p_lower)), ("upper", _nullable(p_upper))]
-        if p_ilow is not None:
+        if p_ilow is not None and p_ihigh is not None:
             columns += [("interval_lower", _nullable(p_ilow)), ("interval_upper", _nullable(p_ihigh))]
         columns.append(("extrapolated", extrapolated.tolist()))
         names = [name for name, _ in columns]
-        predictions = [dict(zip(names, row)) for row in zip(*(values for _, values in columns))]
+        predictions = [dict(zip(names, row, strict=True)) for row in zip(*(values for _, values in columns), strict=True)]
         cautions.extend(_point_cautions("prediction point", px, p_est, extrapolated, s))
 
     if curve_spec is not None and curve_spec.at is not None:
@@ -270,13 +279,13 @@ def _grid(lo: float, hi: float, count: int) -> np.ndarray:
 def _candidates(req: Any, limits: dict[str, int]) -> int:
     """The candidate count asked for; the default is capped by the operator's limit."""
     limit = limits.get("max_candidates")
-    return int(req.candidates) if limit is None else int(min(req.candidates, limit))
+    return int(req.candidate_count) if limit is None else int(min(req.candidate_count, limit))
 
 
 def _nullable(values: np.ndarray) -> list[float | None]:
     """Floats with NaN/inf replaced by None (JSON null)."""
     values = np.asarray(values, dtype=float)
-    out = values.tolist()
+    out: list[float | None] = values.tolist()
     bad = np.flatnonzero(~np.isfinite(values))
     for i in bad.tolist():
         out[i] = None
@@ -337,7 +346,7 @@ def _smooth_job(job: Job, ctx: JobContext) -> tuple[Any, int]:
     try:
         req = SmoothRequest.model_validate_json(job.body, context=ctx.validation_context)
     except ValidationError as exc:
-        raise _validation_problem(exc, "The smooth request has invalid fields; see errors.") from None
+        raise _validation_problem(exc, "The smooth request has invalid fields; see errors.", SmoothRequest) from None
     return smooth_series(req, ctx.limits), len(req.x)
 
 
@@ -345,29 +354,29 @@ def _bandwidth_job(job: Job, ctx: JobContext) -> tuple[Any, int]:
     try:
         req = BandwidthRequest.model_validate_json(job.body, context=ctx.validation_context)
     except ValidationError as exc:
-        raise _validation_problem(exc, "The bandwidth request has invalid fields; see errors.") from None
+        raise _validation_problem(exc, "The bandwidth request has invalid fields; see errors.", BandwidthRequest) from None
     return select_only(req, ctx.limits), len(req.x)
 
 
 def _batch_job(job: Job, ctx: JobContext) -> tuple[Any, int]:
     try:
-        envelope = BatchEnvelope.model_validate_json(job.body)
+        envelope = BatchRequest.model_validate_json(job.body)
     except ValidationError as exc:
-        raise _validation_problem(exc, "The batch request has invalid fields; see errors.") from None
+        raise _validation_problem(exc, "The batch request has invalid fields; see errors.", BatchRequest) from None
     limits = ctx.limits
     count = len(envelope.series)
     if count > limits.get("max_batch_series", count):
         raise ProblemError(
             "validation-error",
             "Too many series in one batch.",
-            errors=[{"field": "series", "message": f"at most {limits['max_batch_series']} series are allowed, got {count}", "type": "too_long"}],
+            errors=[{"field": "series", "message": f"at most {limits['max_batch_series']} series are allowed (BANDWISE_MAX_BATCH_SERIES), got {count}; split the batch", "type": "too_long"}],
         )
     total = sum(len(item["x"]) for item in envelope.series if isinstance(item.get("x"), list))
     if total > limits.get("max_batch_points", total):
         raise ProblemError(
             "validation-error",
             "Too many points in one batch.",
-            errors=[{"field": "series", "message": f"at most {limits['max_batch_points']} points over all series are allowed, got {total}", "type": "too_long"}],
+            errors=[{"field": "series", "message": f"at most {limits['max_batch_points']} points over all series are allowed (BANDWISE_MAX_BATCH_POINTS), got {total}; split the batch", "type": "too_long"}],
         )
     results: list[Any] = []
     points = 0
@@ -376,7 +385,7 @@ def _batch_job(job: Job, ctx: JobContext) -> tuple[Any, int]:
         try:
             req = SmoothRequest.model_validate(item, context=ctx.validation_context)
         except ValidationError as exc:
-            problem = _validation_problem(exc, f"Series {index} has invalid fields; see errors.")
+            problem = _validation_problem(exc, f"Series {index} has invalid fields; see errors.", SmoothRequest)
             results.append({"problem": problem_document(problem.slug, problem.detail, instance=instance, errors=problem.errors)})
             continue
         try:

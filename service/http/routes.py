@@ -8,22 +8,22 @@ import orjson
 from fastapi import APIRouter, FastAPI, Request
 from fastapi.responses import FileResponse, HTMLResponse, PlainTextResponse, Response
 
-from .core import Service
-from .docs_text import BANDWIDTH_DESCRIPTION, BATCH_DESCRIPTION, SMOOTH_DESCRIPTION
-from .errors import PROBLEM_TYPES, ProblemError
-from .limits import retry_after
-from .models import (
+from service.contract.errors import PROBLEM_TYPES, ProblemError
+from service.contract.models import (
     BandwidthResponse,
     BatchResponse,
     DemoData,
     DemoList,
     Health,
-    Readiness,
     KernelsResponse,
     Problem,
+    Readiness,
     SmoothResponse,
 )
-from .static_files import docs_html, index_file
+from service.http.core import Service
+from service.http.docs_text import BANDWIDTH_DESCRIPTION, BATCH_DESCRIPTION, SMOOTH_DESCRIPTION
+from service.http.limits import retry_after
+from service.http.static_files import docs_html, index_file
 
 
 def _problems(*statuses: int) -> dict[int | str, dict[str, Any]]:

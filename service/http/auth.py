@@ -13,7 +13,7 @@ from collections.abc import Sequence
 
 from starlette.requests import Request
 
-from .errors import ProblemError
+from service.contract.errors import ProblemError
 
 UNAUTHORIZED_HEADERS = {"WWW-Authenticate": 'Bearer realm="bandwise"'}
 
