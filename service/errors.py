@@ -51,6 +51,7 @@ _TYPES = [
     ProblemType("overloaded", 503, "Service overloaded", "All workers are busy and the waiting queue is full; retry after Retry-After seconds, preferably on another replica."),
     ProblemType("deadline-exceeded", 503, "Deadline exceeded", "The work did not finish within BANDWISE_DEADLINE_SECONDS and was stopped. Use fewer points, fewer replicates or a fixed bandwidth."),
     ProblemType("shutting-down", 503, "Shutting down", "This process is draining before it stops; retry on another replica."),
+    ProblemType("out-of-memory", 503, "Out of memory", "The worker computing the request was killed by the system, most likely at the replica's memory limit. Send less work per request or retry on a replica with more memory."),
     ProblemType("not-ready", 503, "Not ready", "The worker processes are still starting; retry shortly."),
     ProblemType("internal-error", 500, "Internal error", "An unexpected failure inside the service. It has been logged with the request id; quote it when reporting."),
 ]
