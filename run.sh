@@ -9,10 +9,26 @@ set -euo pipefail
 cd "$(dirname "$0")"
 venv=.venv
 stamp="$venv/.installed-$(sha1sum pyproject.toml | cut -c1-12)"
+# One step of the first-run set-up: a line on screen, the step's own output in
+# $venv/install.log, shown only when the step fails.
+step() {
+    local what=$1 started=$SECONDS
+    shift
+    printf '%s ... ' "$what"
+    if "$@" >>"$venv/install.log" 2>&1; then
+        echo "done ($((SECONDS - started)) s)"
+    else
+        echo "failed; its output (also in $venv/install.log):"
+        tail -n 40 "$venv/install.log" >&2
+        exit 1
+    fi
+}
 if [ ! -f "$stamp" ]; then
+    echo "first run: setting up $venv (later runs start at once)"
     python3 -m venv "$venv"
-    "$venv/bin/python" -m pip install -q --upgrade pip
-    "$venv/bin/python" -m pip install -q -e ".[test]"
+    : >"$venv/install.log"
+    step "upgrading pip" "$venv/bin/python" -m pip install --upgrade pip
+    step "installing bandwise and its dependencies" "$venv/bin/python" -m pip install -e ".[test]"
     "$venv/bin/python" -m estimators.warmup
     touch "$stamp"
 fi

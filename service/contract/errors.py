@@ -77,6 +77,7 @@ _TYPES = [
     ProblemType("rate-limited", 429, "This client sent more requests than BANDWISE_RATE_LIMIT_PER_MINUTE allows. Wait for Retry-After seconds."),
     ProblemType("overloaded", 503, "All workers are busy and the waiting queue is full; retry after Retry-After seconds, preferably on another replica."),
     ProblemType("deadline-exceeded", 503, "The work did not finish within BANDWISE_DEADLINE_SECONDS and was stopped. Use fewer points, fewer replicates or a fixed bandwidth."),
+    ProblemType("out-of-memory", 503, "The worker computing the request was killed by the system, most likely at the replica's memory limit. Send less work per request or retry on a replica with more memory."),
     ProblemType("shutting-down", 503, "This process is draining before it stops; retry on another replica."),
     ProblemType("not-ready", 503, "The worker processes are still starting; retry shortly."),
     ProblemType("internal-error", 500, "An unexpected failure inside the service. It has been logged with the request id; quote it when reporting."),

@@ -136,6 +136,14 @@ class Service:
         except PoolClosed:
             raise ProblemError("shutting-down", "This process is shutting down; retry on another replica.", headers=retry_after(self.settings.retry_after_seconds)) from None
         except WorkerLost as exc:
+            if exc.killed:
+                log.error("worker killed during a job (memory limit?)", extra={"fields": {"request_id": job.request_id, "kind": kind}})
+                raise ProblemError(
+                    "out-of-memory",
+                    "The worker computing this request was killed by the system, most likely at this replica's memory limit. "
+                    "Send fewer points, curve points or replicates, or use a replica with more memory.",
+                    headers=retry_after(self.settings.retry_after_seconds),
+                ) from None
             log.error("worker lost during a job", extra={"fields": {"request_id": job.request_id, "kind": kind, "error": str(exc)}})
             raise ProblemError("internal-error", "The worker computing this request stopped unexpectedly. It has been logged; quote the request id when reporting it.") from None
         if cache_key is not None and outcome.status == 200:

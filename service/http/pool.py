@@ -33,6 +33,7 @@ import logging
 import multiprocessing
 import os
 import pickle
+import signal
 import socket
 import struct
 import sys
@@ -75,7 +76,15 @@ class PoolClosed(PoolError):
 
 
 class WorkerLost(PoolError):
-    """The worker process died while working on the job."""
+    """The worker process died while working on the job.
+
+    ``killed`` is true when SIGKILL ended it from outside (the kernel's
+    out-of-memory killer at the container's memory limit, most often).
+    """
+
+    def __init__(self, message: str, killed: bool = False) -> None:
+        super().__init__(message)
+        self.killed = killed
 
 
 def _widen_buffers(fd: int, size: int = _SOCKET_BUFFER) -> None:
@@ -431,10 +440,12 @@ class WorkerPool:
             self._replace(worker, "cancelled")
             raise
         except (OSError, EOFError, asyncio.IncompleteReadError, RuntimeError, pickle.UnpicklingError) as exc:
+            worker.process.join(0.2)  # its socket closed: it has exited or is about to; read how
+            killed = worker.process.exitcode == -signal.SIGKILL
             self._replace(worker, "died")
             if self._closed:
                 raise PoolClosed() from None
-            raise WorkerLost(repr(exc)) from None
+            raise WorkerLost(repr(exc), killed=killed) from None
         finally:
             self.busy -= 1
         self._release(worker)

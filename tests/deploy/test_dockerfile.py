@@ -1,7 +1,7 @@
 """deploy/Dockerfile: linted with hadolint, and checked for the properties the deployment relies on.
 
-The image is not built here (no Docker engine on the development machines):
-these tests check the file, not an image.
+These tests check the file; tests/system/test_container.py builds the image with
+podman and runs it.
 """
 
 from __future__ import annotations
@@ -112,7 +112,7 @@ def test_dependencies_come_from_the_pinned_requirements() -> None:
     assert "--requirement /tmp/requirements.txt" in runs or "-r /tmp/requirements.txt" in runs
     assert "COPY deploy/requirements.txt /tmp/requirements.txt" in [f"{kw} {rest}" for kw, rest in build]
     # The project itself must not pull in unpinned dependencies.
-    project_installs = re.findall(r"pip install ([^&;]*)", runs)
+    project_installs = [args.strip() for kw, rest in build if kw == "RUN" for args in re.findall(r"pip install ([^&;]*)", rest)]
     assert any("--no-deps" in args and args.split()[-1] == "." for args in project_installs)
 
 
@@ -135,8 +135,16 @@ def test_command_is_the_service_itself_configured_by_environment(monkeypatch: py
     assert not [rest for kw, rest in final if kw == "ENTRYPOINT"]
     # numba ignores a cache directory it cannot write: it must be under TMPDIR.
     assert env["NUMBA_CACHE_DIR"].startswith(env["TMPDIR"] + "/")
-    build_runs = " ".join(rest for kw, rest in stages()[0] if kw == "RUN")
-    assert "-m estimators.warmup" in build_runs
+    build = stages()[0]
+    (warm_up,) = [rest for kw, rest in build if kw == "RUN" and "-m estimators.warmup" in rest]
+    # numba keys its cache to the source path: the warm-up must import the installed
+    # package, so it runs outside the source tree (WORKDIR /, and the tree is gone).
+    workdirs = [rest for kw, rest in build[: build.index(("RUN", warm_up))] if kw == "WORKDIR"]
+    assert workdirs[-1] == "/" and "rm -rf /src" in warm_up
+    # The cache is built for a CPU target the runtime stage names too (numba keys it to the CPU).
+    assert "NUMBA_CPU_NAME=${NUMBA_CPU_NAME}" in warm_up and env["NUMBA_CPU_NAME"] == "${NUMBA_CPU_NAME}"
+    args = {rest.split("=", 1)[0]: rest.split("=", 1)[1] for kw, rest in instructions() if kw == "ARG" and "=" in rest}
+    assert args["NUMBA_CPU_NAME"] == "generic"
     assert importlib.util.find_spec("estimators.warmup") is not None
     settings_env = {k: v for k, v in env.items() if k.startswith("BANDWISE_")}
     known = {f"BANDWISE_{name.upper()}" for name in Settings.model_fields}

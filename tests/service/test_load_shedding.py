@@ -7,6 +7,8 @@ evaluations, so it cannot finish within the deadline on any machine.
 
 from __future__ import annotations
 
+import os
+import signal
 import time
 from collections.abc import Iterator
 
@@ -93,7 +95,14 @@ def test_worker_that_dies_while_idle_is_replaced_before_use(tight: Harness) -> N
     assert after == before + 1
 
 
-def test_worker_that_dies_during_a_job_gives_a_500_with_the_request_id(tight: Harness) -> None:
+@pytest.mark.parametrize(
+    ("sig", "status", "problem"),
+    [
+        (signal.SIGABRT, 500, "internal-error"),  # the worker crashed: a bug
+        (signal.SIGKILL, 503, "out-of-memory"),  # killed from outside, as by the out-of-memory killer at a memory limit
+    ],
+)
+def test_worker_that_dies_during_a_job_gives_a_problem_with_the_request_id(tight: Harness, sig: int, status: int, problem: str) -> None:
     import threading
 
     pool = tight.service.pool
@@ -102,10 +111,11 @@ def test_worker_that_dies_during_a_job_gives_a_500_with_the_request_id(tight: Ha
     body = {"x": [float(i) for i in range(200_000)], "y": [float(i % 7) for i in range(200_000)], "bandwidth": 30.0, "bands": {"replicates": 5000}}
     pending = tight.submit("POST", "/v1/smooth", json=body, headers={"x-request-id": "lost-1"})
     _wait_for(lambda: pool.busy == 1)
-    threading.Timer(0.05, victim.process.kill).start()
+    threading.Timer(0.05, os.kill, (victim.process.pid, sig)).start()
     response = pending.result(60)
-    doc = problem_ok(response, 500)
-    assert doc["request_id"] == "lost-1" and doc["type"] == "/problems/internal-error"
+    doc = problem_ok(response, status)
+    assert doc["request_id"] == "lost-1" and doc["type"] == f"/problems/{problem}"
+    assert ("retry-after" in response.headers) == (status == 503)
     assert tight.run(pool.wait_ready(30.0))
     assert tight.post("/v1/smooth", json=SMALL).status_code == 200
 
