@@ -14,6 +14,7 @@ import calendar
 import re
 from collections.abc import Sequence
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 import numpy.typing as npt
@@ -99,7 +100,7 @@ def _explain(text: object, index: int) -> TimeValueError:
     return TimeValueError(f"x[{index}] = {shown!r} names no real date or time (month, day, hour, minute, second or offset out of range)", index)
 
 
-def _fixed_width(values: list[str], width: int) -> npt.NDArray[np.uint8] | None:
+def _fixed_width(values: list[Any], width: int) -> npt.NDArray[np.uint8] | None:
     """The strings as an (n, width) byte matrix when every one is ASCII of that width, else None."""
     try:
         blob = "".join(values).encode("ascii")
@@ -169,7 +170,7 @@ def parse_timestamps(values: Sequence[object]) -> npt.NDArray[np.int64]:
         return np.zeros(0, dtype=np.int64)
     first = values[0]
     if isinstance(first, str) and isinstance(values, list):
-        rows = _fixed_width(values, len(first))  # type: ignore[arg-type]
+        rows = _fixed_width(values, len(first))
         if rows is not None:
             fast = _parse_fixed(rows)
             if fast is not None:
