@@ -16,12 +16,12 @@ import numpy as np
 from . import _compiled
 from .cautions import Caution
 from .kernels import Kernel
+from .names import ENGINES
 from .sample import SortedSample
 from .sums import DATA_POINT_TERMS, N_TERMS, MomentPlan, binned_grid_allowed, binned_grid_size, compiled_shape, moment_sums, window_counts
 
 __all__ = ["ENGINES", "LocalPolynomial", "LocalSolution", "choose_engine"]
 
-ENGINES = ("auto", "exact", "binned")
 _SINGULAR = 1e-11  # relative determinant below which a local fit drops one degree
 _BINNED_MIN_N = 20000
 #: residual degrees of freedom per point at or below which the noise scale is not estimable (see ``residual_scale``)

@@ -5,7 +5,7 @@ One concept a module, bottom to top: ``record``, ``choices``, ``groups``, ``grid
 Method notes (criteria, rules, plug-in, binned scoring, error bounds, references): ``docs/methods.md``.
 """
 
-from .choices import RULES, SCORED_SELECTORS, SCORINGS, SELECTORS
+from ..names import RULES, SCORED_SELECTORS, SCORINGS, SELECTORS
 from .grid import candidate_grid, well_posed_minimum
 from .record import Selection
 from .select import select_bandwidth, select_for_sample

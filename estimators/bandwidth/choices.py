@@ -7,10 +7,6 @@ from typing import Any
 
 import numpy as np
 
-SELECTORS = ("loocv", "gcv", "aicc", "plugin", "rule_of_thumb")
-RULES = ("min", "one_se")
-SCORINGS = ("auto", "exact", "binned")
-SCORED_SELECTORS = ("loocv", "gcv", "aicc")
 MAX_CANDIDATES = 1000
 
 

@@ -9,10 +9,11 @@ import numpy as np
 
 from ..cautions import Caution
 from ..kernels import Kernel, convert_bandwidth, get_kernel
+from ..names import RULES, SCORED_SELECTORS, SCORINGS, SELECTORS
 from ..sample import SortedSample, validate_sample
 from .binned import BinnedScorer, binned_floor, resolve_scoring
 from .cautions import edge_caution, flat_caution, roughness_caution, unscored_caution
-from .choices import RULES, SCORED_SELECTORS, SCORINGS, SELECTORS, check_choice, check_degree
+from .choices import check_choice, check_degree
 from .fits import CandidateFit, ExactScorer
 from .grid import candidate_grid
 from .groups import TieGroups

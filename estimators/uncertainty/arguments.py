@@ -7,7 +7,9 @@ from typing import Any
 
 import numpy as np
 
-METHODS = ("analytic", "wild_bootstrap", "residual_bootstrap")
+from ..names import BAND_METHODS
+
+METHODS = BAND_METHODS
 MULTIPLIERS = ("rademacher", "mammen", "gaussian")
 
 

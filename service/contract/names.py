@@ -2,21 +2,19 @@
 
 The request models build their choice types from these tuples, so a kernel or
 selector added to ``estimators`` is accepted and documented by the service
-without a change here.
+without a change here. ``estimators.names`` has no imports, so the HTTP process
+that validates requests does not load the numerics.
 """
 
 from __future__ import annotations
 
-from estimators import BAND_METHODS as _BAND_METHODS
-from estimators import ENGINES as _ENGINES
-from estimators import KERNELS as _KERNELS
-from estimators import RULES as _RULES
-from estimators import SCORED_SELECTORS as _SCORED_SELECTORS
-from estimators import SELECTORS as _SELECTORS
+from estimators.names import BAND_METHODS, ENGINES, KERNEL_NAMES, RULES, SELECTORS
+from estimators.names import SCORED_SELECTORS as _SCORED_SELECTORS
 
-KERNEL_NAMES: tuple[str, ...] = tuple(_KERNELS)
-SELECTOR_NAMES: tuple[str, ...] = tuple(_SELECTORS)
-SCORED_SELECTORS: tuple[str, ...] = tuple(_SCORED_SELECTORS)  # selectors whose scores carry standard errors (rule one_se needs one)
-RULE_NAMES: tuple[str, ...] = tuple(_RULES)
-ENGINE_NAMES: tuple[str, ...] = tuple(_ENGINES)
-BAND_METHOD_NAMES: tuple[str, ...] = tuple(_BAND_METHODS)
+SELECTOR_NAMES: tuple[str, ...] = SELECTORS
+SCORED_SELECTORS: tuple[str, ...] = _SCORED_SELECTORS  # selectors whose scores carry standard errors (rule one_se needs one)
+RULE_NAMES: tuple[str, ...] = RULES
+ENGINE_NAMES: tuple[str, ...] = ENGINES
+BAND_METHOD_NAMES: tuple[str, ...] = BAND_METHODS
+
+__all__ = ["BAND_METHOD_NAMES", "ENGINE_NAMES", "KERNEL_NAMES", "RULE_NAMES", "SCORED_SELECTORS", "SELECTOR_NAMES"]

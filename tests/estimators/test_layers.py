@@ -143,3 +143,21 @@ def test_compiled_loops_live_only_in_compiled_modules() -> None:
     users = {name for name, packages in outer.items() if "numba" in packages}
     assert users, "no module imports numba: the walk missed the compiled modules"
     assert {name for name in users if not name.rpartition(".")[2].startswith("_compiled")} == set()
+
+
+def test_name_tuples_match_the_tables_that_implement_them() -> None:
+    """``estimators.names`` is written out by hand so it can load without numpy; it must agree with the kernel table."""
+    from estimators import names
+    from estimators.kernels import KERNELS
+
+    assert tuple(KERNELS) == names.KERNEL_NAMES
+    assert set(names.SCORED_SELECTORS) <= set(names.SELECTORS)
+
+
+def test_the_names_load_without_the_numerics() -> None:
+    """A fresh interpreter that imports ``estimators.names`` has not loaded numpy, scipy or numba."""
+    import subprocess
+
+    code = "import sys, estimators.names; print(sorted(m for m in ('numpy', 'scipy', 'numba', 'estimators.api') if m in sys.modules))"
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True, cwd=Path(__file__).resolve().parents[2])
+    assert out.stdout.strip() == "[]", out.stdout + out.stderr

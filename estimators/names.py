@@ -1,0 +1,20 @@
+"""Names of the kernels, selectors, rules, engines and band methods.
+
+Plain tuples with no imports, so that a caller that only needs the names (a
+request schema, for one) does not load numpy, scipy or the compiled loops. The
+modules that implement each choice take their tuple from here, and
+``tests/estimators/test_layers.py`` checks that the kernel table matches.
+"""
+
+from __future__ import annotations
+
+__all__ = ["BAND_METHODS", "ENGINES", "KERNEL_NAMES", "RULES", "SCORED_SELECTORS", "SCORINGS", "SELECTORS"]
+
+KERNEL_NAMES: tuple[str, ...] = ("gaussian", "epanechnikov", "uniform", "triangular", "biweight", "triweight", "tricube", "cosine")
+SELECTORS: tuple[str, ...] = ("loocv", "gcv", "aicc", "plugin", "rule_of_thumb")
+SCORED_SELECTORS: tuple[str, ...] = ("loocv", "gcv", "aicc")
+"""Selectors whose scores carry standard errors (the rule ``one_se`` needs one)."""
+RULES: tuple[str, ...] = ("min", "one_se")
+SCORINGS: tuple[str, ...] = ("auto", "exact", "binned")
+ENGINES: tuple[str, ...] = ("auto", "exact", "binned")
+BAND_METHODS: tuple[str, ...] = ("analytic", "wild_bootstrap", "residual_bootstrap")
