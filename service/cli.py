@@ -70,6 +70,7 @@ def serve(overrides: dict[str, Any]) -> int:
     from pydantic import ValidationError
 
     from service.app import create_app
+    from service.http.connection import guarded_protocol
     from service.runtime.allocator import tune_allocator
     from service.runtime.logs import configure_logging, uvicorn_log_config
     from service.runtime.settings import Settings, describe_errors, unknown_variables
@@ -100,6 +101,11 @@ def serve(overrides: dict[str, Any]) -> int:
         lifespan="on",
         timeout_graceful_shutdown=max(1, int(settings.drain_seconds) + 1),
         server_header=False,
+        http=guarded_protocol(settings.header_timeout_seconds, settings.send_timeout_seconds),
+        timeout_keep_alive=max(1, round(settings.idle_timeout_seconds)),
+        # forwarded headers are believed only from configured proxies (none by default)
+        proxy_headers=bool(settings.trusted_proxies),
+        forwarded_allow_ips=list(settings.trusted_proxies) or None,
     )
 
     class DrainingServer(uvicorn.Server):

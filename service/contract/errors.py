@@ -76,6 +76,7 @@ _TYPES = [
     ProblemType("unsuitable-data", 422, "The request is valid but the data cannot be fitted as asked (for example all x values equal). `detail` says why."),
     ProblemType("rate-limited", 429, "This client sent more requests than BANDWISE_RATE_LIMIT_PER_MINUTE allows. Wait for Retry-After seconds."),
     ProblemType("overloaded", 503, "All workers are busy and the waiting queue is full; retry after Retry-After seconds, preferably on another replica."),
+    ProblemType("receive-capacity-reached", 503, "The service is already receiving as many bytes of request bodies as BANDWISE_BODY_BYTES_IN_FLIGHT allows; retry after Retry-After seconds, preferably on another replica."),
     ProblemType("deadline-exceeded", 503, "The work did not finish within BANDWISE_DEADLINE_SECONDS and was stopped. Use fewer points, fewer replicates or a fixed bandwidth."),
     ProblemType("out-of-memory", 503, "The worker computing the request was killed by the system, most likely at the replica's memory limit. Send less work per request or retry on a replica with more memory."),
     ProblemType("shutting-down", 503, "This process is draining before it stops; retry on another replica."),
