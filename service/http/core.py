@@ -13,6 +13,7 @@ from service.contract.errors import PROBLEM_MEDIA_TYPE, ProblemError
 from service.contract.jobs import Job, Outcome, WorkerEntry
 from service.http.auth import KeyChecker
 from service.http.budget import ByteBudget, Reservation, read_body_within
+from service.http.disconnect import DisconnectWatch
 from service.http.identity import Admission
 from service.http.limits import RateLimiter, check_json_content_type, retry_after
 from service.http.metrics import Metrics
@@ -124,7 +125,8 @@ class Service:
         accept_gzip = cache_key is None and "gzip" in request.headers.get("accept-encoding", "").lower()
         job = Job(kind, body, request_id_of(request.scope), request.scope["path"], dict(params or {}), accept_gzip)
         try:
-            outcome = await self.pool.run(job, self.settings.deadline_seconds)
+            async with DisconnectWatch(request.receive):
+                outcome = await self.pool.run(job, self.settings.deadline_seconds)
         except Overloaded:
             self.metrics.shed.labels("queue_full").inc()
             raise ProblemError(

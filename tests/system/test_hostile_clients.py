@@ -241,3 +241,38 @@ def test_a_client_that_never_reads_its_answer_is_disconnected() -> None:
             sock.close()
     finally:
         server.terminate()
+
+
+# ------------------------------------------------------------------ clients that leave
+
+
+def heavy_body() -> bytes:
+    n = 60_000
+    return json.dumps(
+        {"x": [i * 0.001 for i in range(n)], "y": [(i * 7919) % 101 * 0.01 for i in range(n)], "curve": {"points": 5000}, "bands": {"replicates": 5000}}
+    ).encode()
+
+
+def test_work_for_clients_that_left_is_stopped(plain: Server) -> None:
+    """Three heavy requests dropped by their clients free the one worker at once; the log and metrics say 499."""
+    body = heavy_body()
+    head = f"POST /v1/smooth HTTP/1.1\r\nHost: replica\r\nContent-Type: application/json\r\nContent-Length: {len(body)}\r\n\r\n".encode("ascii")
+    dropped = []
+    for _ in range(3):
+        sock = socket.create_connection(address(plain), timeout=10)
+        sock.sendall(head + body)
+        dropped.append(sock)
+    time.sleep(1.0)
+    for sock in dropped:
+        sock.close()
+    # Without cancellation these three hold the only worker up to the 30 s deadline each; the client gives up after 10 s.
+    small = {"x": [1.0, 2.0, 3.0, 4.0, 5.0, 6.0], "y": [1.0, 3.0, 2.0, 5.0, 4.0, 6.0], "bandwidth": 1.5}
+    answer = httpx.post(plain.base + "/v1/smooth", json=small, timeout=10.0)
+    assert answer.status_code == 200, answer.text
+    deadline = time.monotonic() + 10
+    while time.monotonic() < deadline and sum(1 for r in log_records(plain) if r.get("status") == 499) < 3:
+        time.sleep(0.1)
+    assert sum(1 for r in log_records(plain) if r.get("status") == 499 and r.get("route") == "/v1/smooth") == 3
+    metrics = httpx.get(plain.base + "/metrics", timeout=5).text
+    assert 'bandwise_requests_total{method="POST",route="/v1/smooth",status="499"} 3.0' in metrics
+    assert not any("traceback" in r for r in log_records(plain))
