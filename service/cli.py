@@ -21,6 +21,8 @@ from typing import Any
 from service import __version__
 
 log = logging.getLogger("bandwise.cli")
+#: seconds after the drain time for the requests cut off to be answered before the server stops
+_CUT_OFF_GRACE = 1.0
 
 
 def _parser() -> argparse.ArgumentParser:
@@ -99,7 +101,7 @@ def serve(overrides: dict[str, Any]) -> int:
         log_config=uvicorn_log_config(settings.log_level),
         access_log=False,
         lifespan="on",
-        timeout_graceful_shutdown=max(1, int(settings.drain_seconds) + 1),
+        timeout_graceful_shutdown=max(1, int(settings.drain_seconds + _CUT_OFF_GRACE) + 1),
         server_header=False,
         http=guarded_protocol(settings.header_timeout_seconds, settings.send_timeout_seconds),
         timeout_keep_alive=max(1, round(settings.idle_timeout_seconds)),
@@ -122,8 +124,12 @@ def serve(overrides: dict[str, Any]) -> int:
         async def on_tick(self, counter: int) -> bool:
             if service.draining and not self.should_exit:
                 elapsed = time.monotonic() - (service.drain_started or time.monotonic())
-                if service.counters.active_api == 0 or elapsed >= settings.drain_seconds:
+                if service.counters.active_api == 0 or elapsed >= settings.drain_seconds + _CUT_OFF_GRACE:
                     self.should_exit = True
+                elif elapsed >= settings.drain_seconds and not service.pool.closed:
+                    # out of drain time: stop the workers, so each request still in flight is
+                    # answered with a 503 problem (shutting-down, Retry-After) before the exit
+                    await service.pool.close()
             return await super().on_tick(counter)
 
     server = DrainingServer(config)

@@ -17,6 +17,7 @@ from service.http.disconnect import DisconnectWatch
 from service.http.identity import Admission
 from service.http.limits import RateLimiter, check_json_content_type, retry_after
 from service.http.metrics import Metrics
+from service.http.negotiation import accepts_gzip
 from service.http.observability import ServiceCounters, request_id_of
 from service.http.pool import DeadlineExceeded, Overloaded, PoolClosed, WorkerLost, WorkerPool
 from service.runtime.settings import Settings
@@ -122,7 +123,7 @@ class Service:
                 raise
             except TimeoutError:
                 raise ProblemError("request-timeout", f"The body did not arrive within {self.settings.deadline_seconds:g} s.", headers={"Connection": "close"}) from None
-        accept_gzip = cache_key is None and "gzip" in request.headers.get("accept-encoding", "").lower()
+        accept_gzip = cache_key is None and accepts_gzip(request.headers.get("accept-encoding", ""))
         job = Job(kind, body, request_id_of(request.scope), request.scope["path"], dict(params or {}), accept_gzip)
         try:
             async with DisconnectWatch(request.receive):
@@ -153,7 +154,11 @@ class Service:
                     headers=retry_after(self.settings.retry_after_seconds),
                 ) from None
             log.error("worker lost during a job", extra={"fields": {"request_id": job.request_id, "kind": kind, "error": str(exc)}})
-            raise ProblemError("internal-error", "The worker computing this request stopped unexpectedly. It has been logged; quote the request id when reporting it.") from None
+            raise ProblemError(
+                "internal-error",
+                "The worker computing this request stopped unexpectedly; nothing was changed, so the request may be retried. It has been logged; quote the request id when reporting it.",
+                headers=retry_after(self.settings.retry_after_seconds),
+            ) from None
         if cache_key is not None and outcome.status == 200:
             self._cache[cache_key] = outcome
         return self._response(request, outcome)

@@ -255,6 +255,16 @@ def heavy_body() -> bytes:
 
 def test_work_for_clients_that_left_is_stopped(plain: Server) -> None:
     """Three heavy requests dropped by their clients free the one worker at once; the log and metrics say 499."""
+    def gone() -> int:
+        return sum(1 for r in log_records(plain) if r.get("status") == 499 and r.get("route") == "/v1/smooth")
+
+    def gone_counted() -> float:
+        line = 'bandwise_requests_total{method="POST",route="/v1/smooth",status="499"} '
+        text = httpx.get(plain.base + "/metrics", timeout=5).text
+        return sum(float(row.removeprefix(line)) for row in text.splitlines() if row.startswith(line))
+
+    time.sleep(0.3)
+    logged, counted = gone(), gone_counted()
     body = heavy_body()
     head = f"POST /v1/smooth HTTP/1.1\r\nHost: replica\r\nContent-Type: application/json\r\nContent-Length: {len(body)}\r\n\r\n".encode("ascii")
     dropped = []
@@ -270,9 +280,103 @@ def test_work_for_clients_that_left_is_stopped(plain: Server) -> None:
     answer = httpx.post(plain.base + "/v1/smooth", json=small, timeout=10.0)
     assert answer.status_code == 200, answer.text
     deadline = time.monotonic() + 10
-    while time.monotonic() < deadline and sum(1 for r in log_records(plain) if r.get("status") == 499) < 3:
+    while time.monotonic() < deadline and gone() < logged + 3:
         time.sleep(0.1)
-    assert sum(1 for r in log_records(plain) if r.get("status") == 499 and r.get("route") == "/v1/smooth") == 3
-    metrics = httpx.get(plain.base + "/metrics", timeout=5).text
-    assert 'bandwise_requests_total{method="POST",route="/v1/smooth",status="499"} 3.0' in metrics
+    assert gone() == logged + 3
+    assert gone_counted() == counted + 3
     assert not any("traceback" in r for r in log_records(plain))
+
+
+# ------------------------------------------------------------------ smaller defects
+
+
+def large_answer_body() -> dict[str, object]:
+    """A small request whose answer is well above the 64 KiB gzip threshold."""
+    return {"x": [float(i) for i in range(50)], "y": [float(i % 4) for i in range(50)], "bandwidth": 4.0, "curve": {"points": 5000}}
+
+
+@pytest.mark.parametrize(("accept", "gzipped"), [("gzip", True), ("gzip;q=0", False), ("identity", False), ("*;q=0.5", True), ("br, gzip;q=0, *", False)])
+def test_gzip_only_when_the_client_accepts_it(plain: Server, accept: str, gzipped: bool) -> None:
+    answer = httpx.post(plain.base + "/v1/smooth", json=large_answer_body(), headers={"Accept-Encoding": accept}, timeout=30)
+    assert answer.status_code == 200
+    assert (answer.headers.get("content-encoding") == "gzip") is gzipped
+
+
+def test_host_header_never_reaches_a_location(plain: Server) -> None:
+    answer = httpx.get(plain.base + "/healthz/", headers={"Host": "evil.example"}, timeout=10, follow_redirects=False)
+    assert "evil.example" not in answer.headers.get("location", "")
+    assert answer.status_code == 404
+
+
+def test_subnormal_x_is_a_client_error_without_traceback(plain: Server) -> None:
+    body = {"x": [i * 5e-324 for i in range(12)], "y": [float(i % 3) for i in range(12)]}
+    answer = httpx.post(plain.base + "/v1/bandwidth", json=body, timeout=30)
+    assert answer.status_code == 422 and "rescale x" in answer.json()["detail"]
+    time.sleep(0.2)
+    assert not any("traceback" in r for r in log_records(plain))
+
+
+def worker_pids(server: Server) -> list[int]:
+    """Worker processes: grandchildren of the server (through the fork server)."""
+    import psutil
+
+    return [p.pid for p in psutil.Process(server.process.pid).children(recursive=True) if p.ppid() != server.process.pid]
+
+
+def test_a_worker_killed_while_idle_is_replaced_at_once(plain: Server) -> None:
+    import os
+    import signal
+
+    before = httpx.get(plain.base + "/metrics", timeout=5).text
+    assert 'bandwise_worker_restarts_total{reason="died"} 0.0' in before
+    pids = worker_pids(plain)
+    assert len(pids) == 1
+    os.kill(pids[0], signal.SIGKILL)
+    deadline = time.monotonic() + 5
+    metrics = before
+    while time.monotonic() < deadline and 'restarts_total{reason="died"} 1.0' not in metrics:  # no request is sent meanwhile
+        time.sleep(0.1)
+        metrics = httpx.get(plain.base + "/metrics", timeout=5).text
+    assert 'bandwise_worker_restarts_total{reason="died"} 1.0' in metrics
+    plain.wait_ok("/readyz", timeout=30)
+
+
+def test_a_worker_killed_mid_job_gives_a_retryable_answer(plain: Server) -> None:
+    import os
+    import signal
+    import threading
+
+    plain.wait_ok("/readyz", timeout=30)
+    result: dict[str, httpx.Response] = {}
+    thread = threading.Thread(target=lambda: result.setdefault("r", httpx.post(plain.base + "/v1/smooth", content=heavy_body(), headers={"Content-Type": "application/json"}, timeout=60)))
+    thread.start()
+    time.sleep(2.0)
+    for pid in worker_pids(plain):
+        os.kill(pid, signal.SIGTERM)  # not SIGKILL: that one is read as the memory limit (503 out-of-memory)
+    thread.join(60)
+    answer = result["r"]
+    assert answer.status_code == 500
+    assert int(answer.headers["Retry-After"]) >= 1
+
+
+def test_drain_time_running_out_answers_in_flight_work_with_a_problem() -> None:
+    import signal
+    import threading
+
+    server = start({"BANDWISE_DRAIN_SECONDS": "1"})
+    try:
+        result: dict[str, httpx.Response] = {}
+        thread = threading.Thread(target=lambda: result.setdefault("r", httpx.post(server.base + "/v1/smooth", content=heavy_body(), headers={"Content-Type": "application/json"}, timeout=60)))
+        thread.start()
+        time.sleep(2.0)
+        server.process.send_signal(signal.SIGTERM)
+        thread.join(60)
+        answer = result["r"]
+        assert answer.status_code == 503 and answer.headers["content-type"] == "application/problem+json", answer.text
+        assert answer.json()["type"] == "/problems/shutting-down" and "Retry-After" in answer.headers
+        assert server.process.wait(30) == 0
+        time.sleep(0.3)
+        assert not any("Traceback" in line or "CancelledError" in line for line in server.stderr_lines), server.stderr_lines[-10:]
+        assert not any(r.get("msg", r.get("message", "")) == "worker replaced" for r in log_records(server))
+    finally:
+        server.kill()
