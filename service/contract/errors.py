@@ -74,6 +74,7 @@ _TYPES = [
     ProblemType("unsupported-media-type", 415, "Send the body as JSON with `Content-Type: application/json`."),
     ProblemType("validation-error", 422, "The JSON is well formed but some fields are missing, unknown, of the wrong type or out of range; `errors` lists each one."),
     ProblemType("unsuitable-data", 422, "The request is valid but the data cannot be fitted as asked (for example all x values equal). `detail` says why."),
+    ProblemType("memory-budget-exceeded", 422, "The request would need more memory in its worker than BANDWISE_REQUEST_MEMORY_BYTES allows (modelled from its size before work starts). Send fewer points, curve points or predict_at values, or leave out bootstrap bands."),
     ProblemType("rate-limited", 429, "This client sent more requests than BANDWISE_RATE_LIMIT_PER_MINUTE allows. Wait for Retry-After seconds."),
     ProblemType("overloaded", 503, "All workers are busy and the waiting queue is full; retry after Retry-After seconds, preferably on another replica."),
     ProblemType("receive-capacity-reached", 503, "The service is already receiving as many bytes of request bodies as BANDWISE_BODY_BYTES_IN_FLIGHT allows; retry after Retry-After seconds, preferably on another replica."),

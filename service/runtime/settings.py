@@ -70,6 +70,7 @@ class Settings(BaseSettings):
     # Request limits
     max_body_bytes: int = Field(64 * MIB, ge=1024, description="Largest request body in bytes (413 beyond, checked while reading).")
     body_bytes_in_flight: int = Field(256 * MIB, ge=1024, description="Most bytes of request bodies the HTTP process receives and holds at once, over all requests (at least BANDWISE_MAX_BODY_BYTES); beyond it: 503 with Retry-After before the body is read.")
+    request_memory_bytes: int = Field(1024 * MIB, ge=64 * MIB, description="Memory one request may take in its worker above the worker's resting size, modelled from the request's size before work starts (docs/reliability.md); beyond it: 422.")
     max_points: int = Field(2_000_000, ge=2, description="Most data points in one series.")
     max_predict_points: int = Field(100_000, ge=1, description="Most entries in `predict_at`.")
     max_curve_points: int = Field(10_000, ge=2, description="Most curve points (`curve.points` or `curve.at`).")
@@ -144,6 +145,7 @@ class Settings(BaseSettings):
             "max_batch_points": self.max_batch_points,
             "max_candidates": self.max_candidates,
             "default_curve_points": self.default_curve_points,
+            "request_memory_bytes": self.request_memory_bytes,
         }
 
 
