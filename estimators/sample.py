@@ -128,10 +128,19 @@ def validate_sample(x: Any, y: Any, weights: Any = None) -> SortedSample:
     return _check_span(SortedSample(xa, ya, wa))
 
 
+#: the smallest x span accepted: the smallest normal double (IEEE 754 binary64) times 2**52, so
+#: that every spacing down to a 2**-52 fraction of the span is still a normal number
+_SMALLEST_SPAN = float(np.finfo(np.float64).tiny) * 2.0**52
+
+
 def _check_span(sample: SortedSample) -> SortedSample:
     # Python floats: a difference beyond the largest double is inf, without a warning
     span = float(sample.xs[-1]) - float(sample.xs[0])
     y_span = float(sample.ys.max()) - float(sample.ys.min())
     if not (math.isfinite(span) and math.isfinite(y_span)):
         raise ValueError("x or y spans more than the largest floating-point number; rescale the data")
+    if 0.0 < span < _SMALLEST_SPAN:
+        # spacings among subnormal numbers lose their precision and ratios of them overflow:
+        # bandwidths this small cannot be computed with
+        raise ValueError(f"x spans only {span:.3g}, below {_SMALLEST_SPAN:.3g}; rescale x (for example multiply it by 1e300)")
     return sample

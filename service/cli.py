@@ -21,6 +21,8 @@ from typing import Any
 from service import __version__
 
 log = logging.getLogger("bandwise.cli")
+#: seconds after the drain time for the requests cut off to be answered before the server stops
+_CUT_OFF_GRACE = 1.0
 
 
 def _parser() -> argparse.ArgumentParser:
@@ -70,6 +72,7 @@ def serve(overrides: dict[str, Any]) -> int:
     from pydantic import ValidationError
 
     from service.app import create_app
+    from service.http.connection import guarded_protocol
     from service.runtime.allocator import tune_allocator
     from service.runtime.logs import configure_logging, uvicorn_log_config
     from service.runtime.settings import Settings, describe_errors, unknown_variables
@@ -98,8 +101,13 @@ def serve(overrides: dict[str, Any]) -> int:
         log_config=uvicorn_log_config(settings.log_level),
         access_log=False,
         lifespan="on",
-        timeout_graceful_shutdown=max(1, int(settings.drain_seconds) + 1),
+        timeout_graceful_shutdown=max(1, int(settings.drain_seconds + _CUT_OFF_GRACE) + 1),
         server_header=False,
+        http=guarded_protocol(settings.header_timeout_seconds, settings.send_timeout_seconds),
+        timeout_keep_alive=max(1, round(settings.idle_timeout_seconds)),
+        # forwarded headers are believed only from configured proxies (none by default)
+        proxy_headers=bool(settings.trusted_proxies),
+        forwarded_allow_ips=list(settings.trusted_proxies) or None,
     )
 
     class DrainingServer(uvicorn.Server):
@@ -116,8 +124,12 @@ def serve(overrides: dict[str, Any]) -> int:
         async def on_tick(self, counter: int) -> bool:
             if service.draining and not self.should_exit:
                 elapsed = time.monotonic() - (service.drain_started or time.monotonic())
-                if service.counters.active_api == 0 or elapsed >= settings.drain_seconds:
+                if service.counters.active_api == 0 or elapsed >= settings.drain_seconds + _CUT_OFF_GRACE:
                     self.should_exit = True
+                elif elapsed >= settings.drain_seconds and not service.pool.closed:
+                    # out of drain time: stop the workers, so each request still in flight is
+                    # answered with a 503 problem (shutting-down, Retry-After) before the exit
+                    await service.pool.close()
             return await super().on_tick(counter)
 
     server = DrainingServer(config)

@@ -87,6 +87,21 @@ def _groups(nodes: Nodes) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     return starts.astype(np.int64), lengths.astype(np.int64), node[starts].astype(np.int64)
 
 
+SLAB_ELEMENTS = 2 * MEMORY_ELEMENTS
+"""Points x replicates of bootstrap deviations held at once (32 MiB of float64)."""
+
+
+def point_slabs(points: int, replicates: int) -> list[tuple[int, int]]:
+    """Consecutive ranges of points whose deviations (points x replicates) fit in :data:`SLAB_ELEMENTS`.
+
+    The bands are computed slab by slab, each slab drawing the same bootstrap
+    errors again from the same seed, so the memory held is fixed whatever the
+    number of points and the result is the same as with one slab.
+    """
+    rows = max(1, SLAB_ELEMENTS // max(replicates, 1))
+    return [(i0, min(i0 + rows, points)) for i0 in range(0, points, rows)]
+
+
 def deviations(
     s: LocalPolynomial,
     blocks: WeightBlocks,

@@ -10,7 +10,7 @@ from scipy.special import ndtri
 
 from ..local_poly import LocalPolynomial
 from .arguments import METHODS, MULTIPLIERS, check_level, check_points, check_replicates, check_seed
-from .bootstrap import deviations, small_sample_factor
+from .bootstrap import deviations, point_slabs, small_sample_factor
 from .cautions import band_cautions
 from .local_fits import centre_degree, coefficient_row, local_fit, sort_points, unsort, variance
 from .noise import noise_column, noise_scale
@@ -105,7 +105,6 @@ def bands(
     # the wild bootstrap's pointwise band needs no noise model; everything else uses the local scale
     noise = None if (method == "wild_bootstrap" and not simultaneous) else noise_scale(s)
     t_ok, a_ok = ts[ok], a[ok]
-    rng = np.random.default_rng(seed_used)
     if ok.any():
         scale = None if noise is None else np.sqrt(variance(s, t_ok, a_ok, noise_column(s, noise)))
         if method == "analytic":
@@ -116,12 +115,15 @@ def bands(
                 # draws of the Gaussian process with the smoother's covariance under the local noise
                 # scale, through the same blocked machinery as the bootstrap (no m x m matrix)
                 nodes = make_nodes(s, t_ok, reps, engine)
-                blocks = WeightBlocks(s, t_ok, a_ok, nodes)
-                dev = deviations(s, blocks, "analytic", reps, rng, res, noise, "gaussian")
-                with np.errstate(divide="ignore", invalid="ignore"):
-                    stat = np.abs(dev) / se_ok[:, None]
-                stat = np.where(np.isfinite(stat), stat, 0.0)
-                crit = float(np.quantile(stat.max(axis=0), lev))
+                sup = np.zeros(reps)
+                for i0, i1 in point_slabs(t_ok.size, reps):
+                    blocks = WeightBlocks(s, t_ok[i0:i1], a_ok[i0:i1], nodes)
+                    dev = deviations(s, blocks, "analytic", reps, np.random.default_rng(seed_used), res, noise, "gaussian")
+                    with np.errstate(divide="ignore", invalid="ignore"):
+                        stat = np.abs(dev) / se_ok[i0:i1, None]
+                    np.maximum(sup, np.where(np.isfinite(stat), stat, 0.0).max(axis=0), out=sup)
+                    del dev, stat
+                crit = float(np.quantile(sup, lev))
             else:
                 crit = float(ndtri(1.0 - alpha / 2.0))
             lower[ok] = centre[ok] - crit * se_ok
@@ -130,25 +132,35 @@ def bands(
         else:
             assert reps is not None  # the bootstrap methods always draw
             nodes = make_nodes(s, t_ok, reps, engine)
-            blocks = WeightBlocks(s, t_ok, a_ok, nodes)
-            dev = deviations(s, blocks, method, reps, rng, res, noise, multiplier)
-            boot_se = np.sqrt(np.mean(dev * dev, axis=1))
+            m_ok = t_ok.size
+            boot_se, q_lo, q_hi = np.empty(m_ok), np.empty(m_ok), np.empty(m_ok)
+            factor: np.ndarray | float = np.ones(m_ok) if method == "wild_bootstrap" else 1.0
+            sup = np.zeros(reps)
+            for i0, i1 in point_slabs(m_ok, reps):
+                # every slab of points sees the same draws (the same seed), so slabs join into one bootstrap
+                blocks = WeightBlocks(s, t_ok[i0:i1], a_ok[i0:i1], nodes)
+                dev = deviations(s, blocks, method, reps, np.random.default_rng(seed_used), res, noise, multiplier)
+                boot_se[i0:i1] = np.sqrt(np.mean(dev * dev, axis=1))
+                if simultaneous:
+                    # sup-t: the critical value comes from the bootstrap process standardised by its own
+                    # scale (it depends on the correlations only); the band's width follows the smooth
+                    # analytic scale, because a wild-bootstrap scale inherits the noise of single squared
+                    # residuals, which a maximum over many points turns into under-coverage
+                    with np.errstate(divide="ignore", invalid="ignore"):
+                        stat = np.abs(dev) / boot_se[i0:i1, None]
+                    np.maximum(sup, np.where(np.isfinite(stat), stat, 0.0).max(axis=0), out=sup)
+                    del stat
+                q_lo[i0:i1], q_hi[i0:i1] = np.quantile(dev, [alpha / 2.0, 1.0 - alpha / 2.0], axis=1)
+                if isinstance(factor, np.ndarray):
+                    factor[i0:i1] = small_sample_factor(blocks, s.sample.ws, lev)
+                del dev
             if simultaneous:
-                # sup-t: the critical value comes from the bootstrap process standardised by its own
-                # scale (it depends on the correlations only); the band's width follows the smooth
-                # analytic scale, because a wild-bootstrap scale inherits the noise of single squared
-                # residuals, which a maximum over many points turns into under-coverage
-                with np.errstate(divide="ignore", invalid="ignore"):
-                    stat = np.abs(dev) / boot_se[:, None]
-                stat = np.where(np.isfinite(stat), stat, 0.0)
-                crit = float(np.quantile(stat.max(axis=0), lev))
+                crit = float(np.quantile(sup, lev))
                 assert scale is not None  # simultaneous bands always use the noise scale
                 lower[ok] = centre[ok] - crit * scale
                 upper[ok] = centre[ok] + crit * scale
                 se[ok] = scale
             # pointwise basic intervals; a simultaneous band never lies inside them
-            factor = small_sample_factor(blocks, s.sample.ws, lev) if method == "wild_bootstrap" else 1.0
-            q_lo, q_hi = np.quantile(dev, [alpha / 2.0, 1.0 - alpha / 2.0], axis=1)
             pw_lower = centre[ok] - factor * q_hi
             pw_upper = centre[ok] - factor * q_lo
             if simultaneous:

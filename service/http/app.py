@@ -126,6 +126,8 @@ def build_app(settings: Settings, entry: WorkerEntry) -> FastAPI:
         ],
     )
     app.state.service = service
+    # no trailing-slash redirects: their Location would be built from the client's Host header
+    app.router.redirect_slashes = False
     app.state.settings = settings
     app.add_exception_handler(ProblemError, _on_problem)
     app.add_exception_handler(StarletteHTTPException, _on_http_error)

@@ -35,7 +35,7 @@ class KeyChecker:
 
     def matches(self, token: str) -> bool:
         """True when ``token`` hashes to one of the digests (constant time over all of them)."""
-        candidate = hashlib.sha256(token.encode("utf-8", "surrogatepass")).digest()
+        candidate = hashlib.sha256(_wire_bytes(token)).digest()
         found = False
         for digest in self._digests:
             found |= hmac.compare_digest(candidate, digest)
@@ -44,7 +44,7 @@ class KeyChecker:
     def client_of(self, request: Request) -> str | None:
         """Digest prefix identifying the caller (for rate limits), or None without a key."""
         token = _bearer(request)
-        return hashlib.sha256(token.encode("utf-8", "surrogatepass")).hexdigest()[:16] if token else None
+        return hashlib.sha256(_wire_bytes(token)).hexdigest()[:16] if token else None
 
     def check(self, request: Request) -> None:
         """Raise a 401 problem unless the request carries a valid key (no-op when keys are off)."""
@@ -54,6 +54,14 @@ class KeyChecker:
         if token is None or not self.matches(token):
             # Same answer for a missing header, a wrong scheme and a wrong key.
             raise ProblemError("unauthorized", "A valid API key is required: send Authorization: Bearer <key>.", headers=dict(UNAUTHORIZED_HEADERS))
+
+
+def _wire_bytes(token: str) -> bytes:
+    """The bytes the client sent: header values reach us decoded as latin-1, so a UTF-8 key is re-encoded that way."""
+    try:
+        return token.encode("latin-1")
+    except UnicodeEncodeError:  # not from a header: a key given as text
+        return token.encode("utf-8", "surrogatepass")
 
 
 def _bearer(request: Request) -> str | None:

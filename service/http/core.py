@@ -12,8 +12,12 @@ from starlette.responses import Response
 from service.contract.errors import PROBLEM_MEDIA_TYPE, ProblemError
 from service.contract.jobs import Job, Outcome, WorkerEntry
 from service.http.auth import KeyChecker
-from service.http.limits import RateLimiter, check_json_content_type, read_body, retry_after
+from service.http.budget import ByteBudget, Reservation, read_body_within
+from service.http.disconnect import DisconnectWatch
+from service.http.identity import Admission
+from service.http.limits import RateLimiter, check_json_content_type, retry_after
 from service.http.metrics import Metrics
+from service.http.negotiation import accepts_gzip
 from service.http.observability import ServiceCounters, request_id_of
 from service.http.pool import DeadlineExceeded, Overloaded, PoolClosed, WorkerLost, WorkerPool
 from service.runtime.settings import Settings
@@ -40,6 +44,7 @@ class Service:
         self.counters = ServiceCounters()
         self.keys = KeyChecker(settings.api_keys)
         self.limiter = RateLimiter(settings.rate_limit_per_minute, settings.rate_limit_burst)
+        self.admission = Admission(self.keys, self.limiter, RateLimiter(settings.auth_failures_per_minute), self.metrics, settings.rate_limit_per_minute)
         self.pool = WorkerPool(
             settings.workers,
             settings.effective_queue_size,
@@ -54,6 +59,7 @@ class Service:
             on_event=self.metrics.on_pool_event,
         )
         self.metrics.bind_pool(lambda: self.pool.busy, lambda: self.pool.waiting, lambda: self.pool.ready_count)
+        self.bodies = ByteBudget(max(settings.body_bytes_in_flight, settings.max_body_bytes), settings.retry_after_seconds)
         self.draining = False
         self.drain_started: float | None = None
         self._cache: dict[str, Outcome] = {}
@@ -78,14 +84,8 @@ class Service:
     # -------------------------------------------------------------- guards
 
     async def guard(self, request: Request) -> None:
-        """API key and per-client rate limit; every /v1 route awaits it first."""
-        self.keys.check(request)
-        if self.limiter.enabled:
-            client = self.keys.client_of(request) or (request.client.host if request.client else "unknown")
-            wait = self.limiter.acquire(client)
-            if wait > 0:
-                self.metrics.shed.labels("rate_limited").inc()
-                raise ProblemError("rate-limited", f"More than {self.settings.rate_limit_per_minute} requests per minute from this client.", headers=retry_after(wait))
+        """API key and per-client rate limit (:class:`~service.http.identity.Admission`); every /v1 route awaits it first."""
+        self.admission.admit(request)
 
     # -------------------------------------------------------------- work
 
@@ -107,18 +107,27 @@ class Service:
             cached = self._cache.get(cache_key)
             if cached is not None:
                 return self._response(request, cached)
+        with self.bodies.reservation() as reservation:
+            return await self._submit_body(request, kind, params, with_body, cache_key, reservation)
+
+    async def _submit_body(self, request: Request, kind: str, params: dict[str, str] | None, with_body: bool, cache_key: str | None, reservation: Reservation) -> Response:
         body = b""
         if with_body:
             check_json_content_type(request)
             try:
                 async with asyncio.timeout(self.settings.deadline_seconds):
-                    body = await read_body(request, self.settings.max_body_bytes)
+                    body = await read_body_within(request, self.settings.max_body_bytes, reservation)
+            except ProblemError as exc:
+                if exc.slug == "receive-capacity-reached":
+                    self.metrics.shed.labels("bodies_in_flight").inc()
+                raise
             except TimeoutError:
                 raise ProblemError("request-timeout", f"The body did not arrive within {self.settings.deadline_seconds:g} s.", headers={"Connection": "close"}) from None
-        accept_gzip = cache_key is None and "gzip" in request.headers.get("accept-encoding", "").lower()
+        accept_gzip = cache_key is None and accepts_gzip(request.headers.get("accept-encoding", ""))
         job = Job(kind, body, request_id_of(request.scope), request.scope["path"], dict(params or {}), accept_gzip)
         try:
-            outcome = await self.pool.run(job, self.settings.deadline_seconds)
+            async with DisconnectWatch(request.receive):
+                outcome = await self.pool.run(job, self.settings.deadline_seconds)
         except Overloaded:
             self.metrics.shed.labels("queue_full").inc()
             raise ProblemError(
@@ -145,7 +154,11 @@ class Service:
                     headers=retry_after(self.settings.retry_after_seconds),
                 ) from None
             log.error("worker lost during a job", extra={"fields": {"request_id": job.request_id, "kind": kind, "error": str(exc)}})
-            raise ProblemError("internal-error", "The worker computing this request stopped unexpectedly. It has been logged; quote the request id when reporting it.") from None
+            raise ProblemError(
+                "internal-error",
+                "The worker computing this request stopped unexpectedly; nothing was changed, so the request may be retried. It has been logged; quote the request id when reporting it.",
+                headers=retry_after(self.settings.retry_after_seconds),
+            ) from None
         if cache_key is not None and outcome.status == 200:
             self._cache[cache_key] = outcome
         return self._response(request, outcome)

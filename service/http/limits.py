@@ -107,6 +107,17 @@ class RateLimiter:
         return wait
 
 
+    def pending(self, client: str, now: float | None = None) -> float:
+        """Seconds until ``client`` may take a token again (0 if it may now); takes nothing."""
+        if not self.enabled:
+            return 0.0
+        now = time.monotonic() if now is None else now
+        with self._lock:
+            tokens, stamp = self._buckets.get(client, (self.capacity, now))
+        tokens = min(self.capacity, tokens + (now - stamp) * self.rate)
+        return 0.0 if tokens >= 1.0 else (1.0 - tokens) / self.rate
+
+
 def retry_after(seconds: float) -> dict[str, str]:
     """A Retry-After header of whole seconds, at least 1."""
     return {"Retry-After": str(max(1, math.ceil(seconds)))}

@@ -7,6 +7,9 @@ from typing import Any
 
 from prometheus_client import CONTENT_TYPE_LATEST, CollectorRegistry, Counter, Gauge, Histogram, generate_latest
 
+#: the methods counted under their own name (RFC 9110 section 9 and PATCH); any other is counted as ``OTHER``
+KNOWN_METHODS = frozenset({"GET", "HEAD", "POST", "PUT", "DELETE", "CONNECT", "OPTIONS", "TRACE", "PATCH"})
+OTHER_METHOD = "OTHER"
 LATENCY_BUCKETS = (0.001, 0.0025, 0.005, 0.01, 0.025, 0.05, 0.1, 0.25, 0.5, 1.0, 2.5, 5.0, 10.0, 30.0, 60.0)
 
 
@@ -34,7 +37,7 @@ class Metrics:
         self.workers_ready = Gauge("bandwise_workers_ready", "Worker processes up and serving.", registry=r)
         self.shed = Counter("bandwise_requests_shed", "Requests refused to protect the service, by reason.", ["reason"], registry=r)
         self.restarts = Counter("bandwise_worker_restarts", "Worker processes replaced, by reason (deadline, died).", ["reason"], registry=r)
-        for reason in ("queue_full", "deadline", "rate_limited", "draining", "not_ready"):
+        for reason in ("queue_full", "deadline", "rate_limited", "auth_failures", "bodies_in_flight", "draining", "not_ready"):
             self.shed.labels(reason)
         for reason in ("deadline", "died", "cancelled"):
             self.restarts.labels(reason)
@@ -42,7 +45,15 @@ class Metrics:
         self._request_children: dict[tuple[str, str, str], Any] = {}
 
     def observe_request(self, route: str, method: str, status: str, seconds: float) -> None:
-        """Count one finished request (label children cached: this runs for every request)."""
+        """Count one finished request (label children cached: this runs for every request).
+
+        The label values come from a fixed set whatever the client sends: ``route``
+        is a registered route template or ``unmatched``, a method outside
+        :data:`KNOWN_METHODS` is counted as ``OTHER``, and ``status`` is a
+        three-digit code, so no client can add series to ``/metrics``.
+        """
+        if method not in KNOWN_METHODS:
+            method = OTHER_METHOD
         key = (route, method, status)
         child = self._request_children.get(key)
         if child is None:

@@ -119,6 +119,7 @@ class _Worker:
         self.reader = reader
         self.writer = writer
         self.killed_for: str | None = None
+        self.unwatch: Callable[[], object] = lambda: None
 
     @property
     def pid(self) -> int | None:
@@ -264,6 +265,7 @@ class WorkerPool:
         # flushes what it holds). A worker still computing is killed at once by the request
         # waiting on it (its read fails); one that has not left within the grace is killed here.
         for w in workers:
+            w.unwatch()
             w.killed_for = w.killed_for or "shutdown"
             w.writer.close()
         await asyncio.gather(*(loop.run_in_executor(self._threads, w.process.join, SHUTDOWN_GRACE) for w in workers), return_exceptions=True)
@@ -331,9 +333,25 @@ class WorkerPool:
             worker.kill("shutdown")
             return
         self._all.add(worker)
+        self._watch_exit(worker)
         self._release(worker)
 
+    def _watch_exit(self, worker: _Worker) -> None:
+        """Notice at once when an idle worker's process ends (killed from outside), so it is not counted ready."""
+        assert self._loop is not None
+        sentinel = worker.process.sentinel
+        worker.unwatch = lambda: self._loop.remove_reader(sentinel) if self._loop is not None else None
+        self._loop.add_reader(sentinel, self._exited, worker)
+
+    def _exited(self, worker: _Worker) -> None:
+        worker.unwatch()
+        if worker in self._idle:
+            self._idle.remove(worker)
+            self._replace(worker, "died")
+        # a busy worker's end is noticed by the request waiting on its socket
+
     def _replace(self, worker: _Worker, reason: str) -> None:
+        worker.unwatch()
         worker.kill(reason)
         self._all.discard(worker)
         if self._closed:

@@ -7,6 +7,7 @@ one place documents them (the README's settings table mirrors this class).
 from __future__ import annotations
 
 import difflib
+import ipaddress
 import os
 import re
 from collections.abc import Mapping
@@ -61,10 +62,15 @@ class Settings(BaseSettings):
     deadline_seconds: float = Field(30.0, gt=0, le=3600, description="Per-request deadline (waiting plus work); past it the work is stopped and the answer is 503.")
     drain_seconds: float = Field(20.0, ge=0, le=3600, description="On SIGTERM, how long in-flight requests may take to finish before the process exits.")
     retry_after_seconds: int = Field(2, ge=1, le=3600, description="Value of Retry-After on 503 answers when the service sheds load.")
+    header_timeout_seconds: float = Field(10.0, gt=0, le=3600, description="A connection must complete each request's header section within this time (from connecting, or from the request's first byte); else it is closed.")
+    idle_timeout_seconds: float = Field(5.0, gt=0, le=3600, description="A keep-alive connection idle this long between requests is closed.")
+    send_timeout_seconds: float = Field(30.0, gt=0, le=3600, description="A client that takes none of its answer for this long is disconnected and the answer dropped.")
     worker_nice: int = Field(5, ge=0, le=19, description="Niceness added to worker processes, which also run as batch (throughput) tasks on Linux, so the HTTP process answers first when the CPU is short; 0 keeps the default scheduling.")
 
     # Request limits
     max_body_bytes: int = Field(64 * MIB, ge=1024, description="Largest request body in bytes (413 beyond, checked while reading).")
+    body_bytes_in_flight: int = Field(256 * MIB, ge=1024, description="Most bytes of request bodies the HTTP process receives and holds at once, over all requests (at least BANDWISE_MAX_BODY_BYTES); beyond it: 503 with Retry-After before the body is read.")
+    request_memory_bytes: int = Field(1024 * MIB, ge=64 * MIB, description="Memory one request may take in its worker above the worker's resting size, modelled from the request's size before work starts (docs/reliability.md); beyond it: 422.")
     max_points: int = Field(2_000_000, ge=2, description="Most data points in one series.")
     max_predict_points: int = Field(100_000, ge=1, description="Most entries in `predict_at`.")
     max_curve_points: int = Field(10_000, ge=2, description="Most curve points (`curve.points` or `curve.at`).")
@@ -81,6 +87,8 @@ class Settings(BaseSettings):
     cors_origins: Annotated[list[str], NoDecode] = Field(default_factory=list, description="Comma-separated origins allowed to call the API from a browser; empty turns CORS off.")
     rate_limit_per_minute: int = Field(0, ge=0, description="Requests per minute allowed per client (API key, else address) on /v1; 0 turns the limit off. Beyond it: 429.")
     rate_limit_burst: int = Field(0, ge=0, description="Burst size of the per-client limit; 0 means the per-minute figure.")
+    trusted_proxies: Annotated[list[str], NoDecode] = Field(default_factory=list, description="Comma-separated addresses or networks of proxies whose X-Forwarded-For / X-Forwarded-Proto are believed; empty (the default) trusts none, so the client is the connection's peer.")
+    auth_failures_per_minute: int = Field(10, ge=0, description="Failed authentications allowed per minute from one address when API keys are on; beyond it: 429 without checking the key. 0 turns the brake off.")
 
     # Responses and logs
     gzip_min_bytes: int = Field(64 * 1024, ge=0, description="API responses at least this large are gzip-compressed when the client accepts gzip.")
@@ -96,6 +104,17 @@ class Settings(BaseSettings):
             if not _SHA256_HEX.match(key):
                 raise ValueError("each API key entry must be the 64-character hex SHA-256 digest of a key, not the key itself")
         return keys
+
+    @field_validator("trusted_proxies", mode="before")
+    @classmethod
+    def _parse_proxies(cls, value: Any) -> Any:
+        proxies = _split_csv(value)
+        for proxy in proxies:
+            try:
+                ipaddress.ip_network(proxy, strict=False)
+            except ValueError:
+                raise ValueError(f"{proxy!r} is not an IP address or network (e.g. 10.0.0.5 or 10.0.0.0/24)") from None
+        return proxies
 
     @field_validator("cors_origins", mode="before")
     @classmethod
@@ -126,6 +145,7 @@ class Settings(BaseSettings):
             "max_batch_points": self.max_batch_points,
             "max_candidates": self.max_candidates,
             "default_curve_points": self.default_curve_points,
+            "request_memory_bytes": self.request_memory_bytes,
         }
 
 

@@ -27,6 +27,7 @@ from service.contract.errors import PROBLEM_MEDIA_TYPE, ProblemError, problem_by
 from service.contract.field_errors import field_errors
 from service.contract.jobs import Job, Outcome
 from service.contract.models import KNOWN_FIELDS, BandsSpec, BandwidthRequest, BatchRequest, SmoothRequest
+from service.worker.memory import check_budget, request_bytes, smooth_bytes
 
 log = logging.getLogger("bandwise.worker")
 
@@ -347,6 +348,7 @@ def _smooth_job(job: Job, ctx: JobContext) -> tuple[Any, int]:
         req = SmoothRequest.model_validate_json(job.body, context=ctx.validation_context)
     except ValidationError as exc:
         raise _validation_problem(exc, "The smooth request has invalid fields; see errors.", SmoothRequest) from None
+    check_budget(smooth_bytes(req, len(job.body), ctx.limits.get("default_curve_points", 200)), ctx.limits)
     return smooth_series(req, ctx.limits), len(req.x)
 
 
@@ -355,6 +357,7 @@ def _bandwidth_job(job: Job, ctx: JobContext) -> tuple[Any, int]:
         req = BandwidthRequest.model_validate_json(job.body, context=ctx.validation_context)
     except ValidationError as exc:
         raise _validation_problem(exc, "The bandwidth request has invalid fields; see errors.", BandwidthRequest) from None
+    check_budget(request_bytes(len(job.body), len(req.x), 0, False), ctx.limits)
     return select_only(req, ctx.limits), len(req.x)
 
 
@@ -389,6 +392,7 @@ def _batch_job(job: Job, ctx: JobContext) -> tuple[Any, int]:
             results.append({"problem": problem_document(problem.slug, problem.detail, instance=instance, errors=problem.errors)})
             continue
         try:
+            check_budget(smooth_bytes(req, len(job.body), limits.get("default_curve_points", 200)), limits)
             results.append(smooth_series(req, limits))
             points += len(req.x)
         except ProblemError as problem:

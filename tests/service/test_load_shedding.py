@@ -115,7 +115,7 @@ def test_worker_that_dies_during_a_job_gives_a_problem_with_the_request_id(tight
     response = pending.result(60)
     doc = problem_ok(response, status)
     assert doc["request_id"] == "lost-1" and doc["type"] == f"/problems/{problem}"
-    assert ("retry-after" in response.headers) == (status == 503)
+    assert int(response.headers["retry-after"]) >= 1  # the job changed nothing, so a retry is safe
     assert tight.run(pool.wait_ready(30.0))
     assert tight.post("/v1/smooth", json=SMALL).status_code == 200
 
