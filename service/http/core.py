@@ -9,10 +9,12 @@ import time
 from starlette.requests import Request
 from starlette.responses import Response
 
+from service.contract.arrow_layout import ARROW_KINDS, accepts_arrow
 from service.contract.errors import PROBLEM_MEDIA_TYPE, ProblemError
 from service.contract.jobs import Job, Outcome, WorkerEntry
+from service.http.arrow_media import body_media_type
 from service.http.auth import KeyChecker
-from service.http.limits import RateLimiter, check_json_content_type, read_body, retry_after
+from service.http.limits import RateLimiter, read_body, retry_after
 from service.http.metrics import Metrics
 from service.http.observability import ServiceCounters, request_id_of
 from service.http.pool import DeadlineExceeded, Overloaded, PoolClosed, WorkerLost, WorkerPool
@@ -108,15 +110,17 @@ class Service:
             if cached is not None:
                 return self._response(request, cached)
         body = b""
+        content_type = "application/json"
         if with_body:
-            check_json_content_type(request)
+            content_type = body_media_type(request, kind)
             try:
                 async with asyncio.timeout(self.settings.deadline_seconds):
                     body = await read_body(request, self.settings.max_body_bytes)
             except TimeoutError:
                 raise ProblemError("request-timeout", f"The body did not arrive within {self.settings.deadline_seconds:g} s.", headers={"Connection": "close"}) from None
         accept_gzip = cache_key is None and "gzip" in request.headers.get("accept-encoding", "").lower()
-        job = Job(kind, body, request_id_of(request.scope), request.scope["path"], dict(params or {}), accept_gzip)
+        accept_arrow = kind in ARROW_KINDS and accepts_arrow(request.headers.get("accept"))
+        job = Job(kind, body, request_id_of(request.scope), request.scope["path"], dict(params or {}), accept_gzip, content_type, accept_arrow)
         try:
             outcome = await self.pool.run(job, self.settings.deadline_seconds)
         except Overloaded:
