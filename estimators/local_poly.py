@@ -210,8 +210,19 @@ class LocalPolynomial:
 
     # -- public API --------------------------------------------------------
     def predict(self, points: Any) -> np.ndarray:
-        """Curve estimate at ``points``; NaN where the window holds no data."""
-        sol = self.solve(points)
+        """Curve estimate at ``points``; NaN where the window holds no data.
+
+        Unsorted points are sorted once and only the estimate column is put back
+        in the caller's order (not the whole local solution).
+        """
+        t = np.asarray(points, dtype=float).ravel()
+        if t.size > 1 and not np.all(t[1:] >= t[:-1]):
+            perm = np.argsort(t)
+            out = np.empty(t.size)
+            out[perm] = self._solve_sorted(t[perm]).beta[:, 0]
+            out += self.sample.y_centre
+            return out
+        sol = self._solve_sorted(t)
         return sol.beta[:, 0] + self.sample.y_centre
 
     def slope(self, points: Any) -> np.ndarray:

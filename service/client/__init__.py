@@ -57,6 +57,7 @@ import orjson
 from pydantic import BaseModel, ValidationError
 
 from service import __version__
+from service.client import arrow as arrow_codec
 from service.client.errors import (
     BandwiseError,
     ConnectionFailed,
@@ -89,6 +90,7 @@ from service.client.results import (
     to_numpy,
 )
 from service.client.retry import RetryPolicy, parse_retry_after
+from service.contract.arrow_layout import ARROW_STREAM
 from service.contract.errors import REASON_PHRASES
 from service.contract.field_errors import RENAMED_FIELDS, field_errors
 from service.contract.models import BandwidthRequest, FieldErrorOut, SmoothRequest
@@ -347,6 +349,7 @@ class _Prepared:
     path: str
     body: bytes | None
     model: type[_Answer]
+    content_type: str = "application/json"
 
 
 def _dumps(body: Any) -> bytes:
@@ -462,22 +465,34 @@ class _ClientBase:
     def _request_headers(self, call: _Call, prepared: _Prepared) -> dict[str, str]:
         headers = {"X-Request-ID": call.request_id}
         if prepared.body is not None:
-            headers["Content-Type"] = "application/json"
+            headers["Content-Type"] = prepared.content_type
         return headers
+
+    arrow_min_points: int | None = arrow_codec.ARROW_MIN_POINTS
+    """Series of at least this many points go as an Arrow IPC stream when pyarrow is installed; None: always JSON."""
+
+    def _encode(self, body: dict[str, Any]) -> tuple[bytes, str]:
+        """The body as JSON, or as an Arrow stream for a series of at least ``arrow_min_points`` points."""
+        threshold = self.arrow_min_points
+        if threshold is not None and len(body["x"]) >= threshold and arrow_codec.available():
+            return arrow_codec.request_stream(body), ARROW_STREAM
+        return _dumps(body), "application/json"
 
     def _prepare_smooth(self, x: ArrayLike, y: ArrayLike, options: Mapping[str, Any]) -> _Prepared:
         errors: list[dict[str, str]] = []
         body = _series_body(x, y, options, SmoothRequest, "", errors, self.validate)
         if errors:
             raise _refuse(errors, "smooth request")
-        return _Prepared("POST", "/v1/smooth", _dumps(body), SmoothResult)
+        payload, content_type = self._encode(body)
+        return _Prepared("POST", "/v1/smooth", payload, SmoothResult, content_type)
 
     def _prepare_bandwidth(self, x: ArrayLike, y: ArrayLike, options: Mapping[str, Any]) -> _Prepared:
         errors: list[dict[str, str]] = []
         body = _series_body(x, y, options, BandwidthRequest, "", errors, self.validate)
         if errors:
             raise _refuse(errors, "bandwidth request")
-        return _Prepared("POST", "/v1/bandwidth", _dumps(body), BandwidthResult)
+        payload, content_type = self._encode(body)
+        return _Prepared("POST", "/v1/bandwidth", payload, BandwidthResult, content_type)
 
     def _prepare_batch(self, series: Iterable[Mapping[str, Any]]) -> _Prepared:
         if isinstance(series, Mapping) or isinstance(series, (str, bytes)):

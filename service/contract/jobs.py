@@ -31,6 +31,11 @@ class Job:
         Path parameters (e.g. the demo name).
     accept_gzip : bool
         Whether the client accepts a gzip-encoded answer.
+    content_type : str
+        Media type of ``body``: ``application/json`` or an Arrow IPC stream
+        (see :mod:`service.contract.arrow_layout`).
+    accept_arrow : bool
+        Whether the client asked for the answer as an Arrow IPC stream.
     """
 
     kind: str
@@ -39,6 +44,8 @@ class Job:
     path: str = ""
     params: dict[str, Any] = field(default_factory=dict)
     accept_gzip: bool = False
+    content_type: str = "application/json"
+    accept_arrow: bool = False
 
 
 @dataclass(frozen=True)

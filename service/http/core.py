@@ -9,13 +9,15 @@ import time
 from starlette.requests import Request
 from starlette.responses import Response
 
+from service.contract.arrow_layout import ARROW_KINDS, accepts_arrow
 from service.contract.errors import PROBLEM_MEDIA_TYPE, ProblemError
 from service.contract.jobs import Job, Outcome, WorkerEntry
+from service.http.arrow_media import body_media_type
 from service.http.auth import KeyChecker
 from service.http.budget import ByteBudget, Reservation, read_body_within
 from service.http.disconnect import DisconnectWatch
 from service.http.identity import Admission
-from service.http.limits import RateLimiter, check_json_content_type, retry_after
+from service.http.limits import RateLimiter, retry_after
 from service.http.metrics import Metrics
 from service.http.negotiation import accepts_gzip
 from service.http.observability import ServiceCounters, request_id_of
@@ -112,8 +114,9 @@ class Service:
 
     async def _submit_body(self, request: Request, kind: str, params: dict[str, str] | None, with_body: bool, cache_key: str | None, reservation: Reservation) -> Response:
         body = b""
+        content_type = "application/json"
         if with_body:
-            check_json_content_type(request)
+            content_type = body_media_type(request, kind)
             try:
                 async with asyncio.timeout(self.settings.deadline_seconds):
                     body = await read_body_within(request, self.settings.max_body_bytes, reservation)
@@ -124,7 +127,8 @@ class Service:
             except TimeoutError:
                 raise ProblemError("request-timeout", f"The body did not arrive within {self.settings.deadline_seconds:g} s.", headers={"Connection": "close"}) from None
         accept_gzip = cache_key is None and accepts_gzip(request.headers.get("accept-encoding", ""))
-        job = Job(kind, body, request_id_of(request.scope), request.scope["path"], dict(params or {}), accept_gzip)
+        accept_arrow = kind in ARROW_KINDS and accepts_arrow(request.headers.get("accept"))
+        job = Job(kind, body, request_id_of(request.scope), request.scope["path"], dict(params or {}), accept_gzip, content_type, accept_arrow)
         try:
             async with DisconnectWatch(request.receive):
                 outcome = await self.pool.run(job, self.settings.deadline_seconds)

@@ -23,10 +23,12 @@ from pydantic import ValidationError
 import estimators
 from estimators import KERNELS, fit, select_bandwidth
 from estimators.demo import DEMOS
+from service.contract.arrow_layout import ARROW_STREAM
 from service.contract.errors import PROBLEM_MEDIA_TYPE, ProblemError, problem_bytes, problem_document
 from service.contract.field_errors import field_errors
 from service.contract.jobs import Job, Outcome
 from service.contract.models import KNOWN_FIELDS, BandsSpec, BandwidthRequest, BatchRequest, SmoothRequest
+from service.worker import arrow_codec
 from service.worker.memory import check_budget, request_bytes, smooth_bytes
 
 log = logging.getLogger("bandwise.worker")
@@ -114,17 +116,17 @@ def _validation_problem(error: ValidationError, detail: str, model: type[Any]) -
 # ----------------------------------------------------------------- smoothing
 
 
-def smooth_series(req: SmoothRequest, limits: dict[str, int]) -> dict[str, Any]:
+def smooth_series(req: SmoothRequest, limits: dict[str, int], arrays: arrow_codec.Arrays | None = None) -> dict[str, Any]:
     """Answer one validated smooth request (the ``/v1/smooth`` response body).
+
+    ``arrays`` (x, y, weights), when given, are the checked data in place of ``req.x``, ``req.y``, ``req.weights``.
 
     Raises
     ------
     ProblemError
         ``unsuitable-data`` when ``estimators`` rejects the data.
     """
-    x = _array(req.x)
-    y = _array(req.y)
-    weights = _array(req.weights)
+    x, y, weights = arrays if arrays is not None else (_array(req.x), _array(req.y), _array(req.weights))
     try:
         with np.errstate(all="ignore"):
             return _smooth_arrays(req, x, y, weights, limits)
@@ -317,18 +319,19 @@ def _point_cautions(what: str, points: np.ndarray, estimate: np.ndarray, extrapo
     return out
 
 
-def select_only(req: BandwidthRequest, limits: dict[str, int]) -> dict[str, Any]:
-    """Answer one validated bandwidth request."""
+def select_only(req: BandwidthRequest, limits: dict[str, int], arrays: arrow_codec.Arrays | None = None) -> dict[str, Any]:
+    """Answer one validated bandwidth request (``arrays`` as for :func:`smooth_series`)."""
+    x, y, weights = arrays if arrays is not None else (_array(req.x), _array(req.y), _array(req.weights))
     try:
         with np.errstate(all="ignore"):
             sel = select_bandwidth(
-                _array(req.x),
-                _array(req.y),
+                x,
+                y,
                 kernel=req.kernel,
                 degree=req.degree,
                 selector=req.selector,
                 rule=req.rule,
-                weights=_array(req.weights),
+                weights=weights,
                 candidates=_candidates(req, limits),
                 bandwidth_min=req.bandwidth_min,
                 bandwidth_max=req.bandwidth_max,
@@ -344,6 +347,9 @@ def select_only(req: BandwidthRequest, limits: dict[str, int]) -> dict[str, Any]
 
 
 def _smooth_job(job: Job, ctx: JobContext) -> tuple[Any, int]:
+    if job.content_type == ARROW_STREAM:
+        req, arrays = arrow_codec.read_request(job.body, SmoothRequest, ctx.validation_context)
+        return smooth_series(req, ctx.limits, arrays), arrays[0].size
     try:
         req = SmoothRequest.model_validate_json(job.body, context=ctx.validation_context)
     except ValidationError as exc:
@@ -353,6 +359,9 @@ def _smooth_job(job: Job, ctx: JobContext) -> tuple[Any, int]:
 
 
 def _bandwidth_job(job: Job, ctx: JobContext) -> tuple[Any, int]:
+    if job.content_type == ARROW_STREAM:
+        req, arrays = arrow_codec.read_request(job.body, BandwidthRequest, ctx.validation_context)
+        return select_only(req, ctx.limits, arrays), arrays[0].size
     try:
         req = BandwidthRequest.model_validate_json(job.body, context=ctx.validation_context)
     except ValidationError as exc:
@@ -479,6 +488,8 @@ def run_job(job: Job, ctx: JobContext) -> Outcome:
         if handler is None:
             raise RuntimeError(f"unknown job kind {job.kind!r}")
         result, points = handler(job, ctx)
+        if job.accept_arrow:
+            return Outcome(200, arrow_codec.write_answer(result), ARROW_STREAM, None, points, None, time.perf_counter() - started)
         payload, encoding = _encode(orjson.dumps(result, option=_DUMP_OPTIONS), job, ctx)
         return Outcome(200, payload, "application/json", encoding, points, None, time.perf_counter() - started)
     except ProblemError as problem:

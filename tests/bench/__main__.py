@@ -39,6 +39,8 @@ MODULES: list[tuple[str, list[str], list[str]]] = [
     ("bench_selection", [], ["--max-n", "1e4"]),
     ("bench_bootstrap", [], ["--n", "1e4", "--replicates", "200"]),
     ("bench_service", [], ["--quick"]),
+    ("bench_wire", [], ["--n", "1e5", "--repeat", "3"]),
+    ("bench_predict_order", [], ["--n", "1e5"]),
     ("study_selection", [], ["--replications", "5"]),
     ("study_coverage", [], ["--replications", "20"]),
 ]

@@ -130,11 +130,11 @@ def test_estimators_never_import_service() -> None:
 
 
 def test_the_http_process_does_not_load_the_numerics() -> None:
-    """Importing the app loads no numba, scipy or fitting code: those live in the worker processes.
+    """Importing the app loads no numba, scipy, pyarrow or fitting code: those live in the worker processes.
 
     Keeps the HTTP process small and its start fast (measured: about 1 s with the
     numerics left out, 3 to 5 s with them).
     """
-    code = "import sys, service.http.app; print(sorted(m for m in ('numba', 'scipy', 'estimators.api', 'estimators.local_poly') if m in sys.modules))"
+    code = "import sys, service.http.app; print(sorted(m for m in ('numba', 'scipy', 'pyarrow', 'estimators.api', 'estimators.local_poly') if m in sys.modules))"
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True, cwd=ROOT)
     assert out.stdout.strip() == "[]", out.stdout + out.stderr
