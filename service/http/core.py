@@ -12,6 +12,7 @@ from starlette.responses import Response
 from service.contract.errors import PROBLEM_MEDIA_TYPE, ProblemError
 from service.contract.jobs import Job, Outcome, WorkerEntry
 from service.http.auth import KeyChecker
+from service.http.batching import BatchRunner
 from service.http.limits import RateLimiter, check_json_content_type, read_body, retry_after
 from service.http.metrics import Metrics
 from service.http.observability import ServiceCounters, request_id_of
@@ -53,6 +54,7 @@ class Service:
             entry,
             on_event=self.metrics.on_pool_event,
         )
+        self.batches = BatchRunner(self.pool, self.metrics, settings.max_batch_points, settings.gzip_min_bytes, settings.gzip_level)
         self.metrics.bind_pool(lambda: self.pool.busy, lambda: self.pool.waiting, lambda: self.pool.ready_count)
         self.draining = False
         self.drain_started: float | None = None
@@ -118,7 +120,10 @@ class Service:
         accept_gzip = cache_key is None and "gzip" in request.headers.get("accept-encoding", "").lower()
         job = Job(kind, body, request_id_of(request.scope), request.scope["path"], dict(params or {}), accept_gzip)
         try:
-            outcome = await self.pool.run(job, self.settings.deadline_seconds)
+            if kind == "batch":
+                outcome = await self.batches.run(job, self.settings.deadline_seconds)
+            else:
+                outcome = await self.pool.run(job, self.settings.deadline_seconds)
         except Overloaded:
             self.metrics.shed.labels("queue_full").inc()
             raise ProblemError(
