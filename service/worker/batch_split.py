@@ -22,6 +22,8 @@ import numpy as np
 
 _STRUCTURAL = np.frombuffer(b'"\\[]{}', dtype=np.uint8)
 _QUOTE, _BACKSLASH, _OPEN_LIST, _CLOSE_LIST, _OPEN_OBJ, _CLOSE_OBJ = (int(c) for c in _STRUCTURAL)
+_IS_STRUCTURAL = np.zeros(256, dtype=bool)
+_IS_STRUCTURAL[_STRUCTURAL] = True
 _HEAD = re.compile(rb'\s*\{\s*"series"\s*:\s*')
 _BETWEEN = re.compile(rb"\s*,\s*")
 _TAIL = re.compile(rb"\s*\}\s*")
@@ -50,7 +52,7 @@ def series_spans(body: bytes, max_series: int) -> list[tuple[int, int]] | None:
     if head is None or body[head.end() : head.end() + 1] != b"[":
         return None
     raw = np.frombuffer(body, dtype=np.uint8)
-    where = np.flatnonzero(np.isin(raw, _STRUCTURAL))
+    where = np.flatnonzero(_IS_STRUCTURAL[raw])  # one table look-up per byte
     if where.size > STRUCTURAL_PER_SERIES * (max_series + 1):
         return None
     codes = raw[where].tolist()
