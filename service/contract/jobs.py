@@ -10,7 +10,7 @@ from dataclasses import dataclass, field
 from multiprocessing.connection import Connection
 from typing import Any
 
-JOB_KINDS = ("smooth", "batch", "bandwidth", "kernels", "demo_list", "demo", "ping")
+JOB_KINDS = ("smooth", "batch", "bandwidth", "kernels", "demo_list", "demo", "ping", "batch_plan")
 
 
 @dataclass(frozen=True)
@@ -68,6 +68,10 @@ class Outcome:
         Problem slug when the answer is an error.
     seconds : float
         Time the worker spent on the job.
+    unfinished : int
+        Batch slots not started before the batch's deadline (marked deadline-exceeded).
+    listed : int
+        Data points listed over all slots of a batch job (for the whole batch's point limit).
     """
 
     status: int
@@ -77,6 +81,8 @@ class Outcome:
     points: int = 0
     problem: str | None = None
     seconds: float = 0.0
+    unfinished: int = 0
+    listed: int = 0
 
 
 @dataclass(frozen=True)

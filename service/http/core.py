@@ -14,6 +14,7 @@ from service.contract.errors import PROBLEM_MEDIA_TYPE, ProblemError
 from service.contract.jobs import Job, Outcome, WorkerEntry
 from service.http.arrow_media import body_media_type
 from service.http.auth import KeyChecker
+from service.http.batching import BatchRunner
 from service.http.budget import ByteBudget, Reservation, read_body_within
 from service.http.disconnect import DisconnectWatch
 from service.http.identity import Admission
@@ -60,6 +61,7 @@ class Service:
             entry,
             on_event=self.metrics.on_pool_event,
         )
+        self.batches = BatchRunner(self.pool, self.metrics, settings.max_batch_points, settings.gzip_min_bytes, settings.gzip_level)
         self.metrics.bind_pool(lambda: self.pool.busy, lambda: self.pool.waiting, lambda: self.pool.ready_count)
         self.bodies = ByteBudget(max(settings.body_bytes_in_flight, settings.max_body_bytes), settings.retry_after_seconds)
         self.draining = False
@@ -131,7 +133,10 @@ class Service:
         job = Job(kind, body, request_id_of(request.scope), request.scope["path"], dict(params or {}), accept_gzip, content_type, accept_arrow)
         try:
             async with DisconnectWatch(request.receive):
-                outcome = await self.pool.run(job, self.settings.deadline_seconds)
+                if kind == "batch":
+                    outcome = await self.batches.run(job, self.settings.deadline_seconds)
+                else:
+                    outcome = await self.pool.run(job, self.settings.deadline_seconds)
         except Overloaded:
             self.metrics.shed.labels("queue_full").inc()
             raise ProblemError(

@@ -21,7 +21,9 @@ class Metrics:
     ``bandwise_points_processed_total``, ``bandwise_work_in_flight``,
     ``bandwise_work_waiting``, ``bandwise_workers_ready``,
     ``bandwise_requests_shed_total{reason}``,
-    ``bandwise_worker_restarts_total{reason}`` (deadline, died, cancelled).
+    ``bandwise_worker_restarts_total{reason}`` (deadline, died, cancelled),
+    ``bandwise_batch_slots_unfinished_total{reason}`` (batch slots answered with a problem
+    instead of a result because time ran out or their worker was lost).
     """
 
     content_type = CONTENT_TYPE_LATEST
@@ -41,6 +43,10 @@ class Metrics:
             self.shed.labels(reason)
         for reason in ("deadline", "died", "cancelled"):
             self.restarts.labels(reason)
+        self.batch_unfinished = Counter(
+            "bandwise_batch_slots_unfinished", "Batch slots answered with a problem because the deadline passed or their worker was lost, by problem type.", ["reason"], registry=r
+        )
+        self.batch_unfinished.labels("deadline-exceeded")
         self._latency_children: dict[str, Any] = {}
         self._request_children: dict[tuple[str, str, str], Any] = {}
 

@@ -423,8 +423,11 @@ class WorkerPool:
             self.waiting -= 1
         return fut.result()
 
-    async def run(self, job: Job, timeout: float) -> Outcome:
+    async def run(self, job: Job, timeout: float, *, admitted: bool = False) -> Outcome:
         """Run ``job`` in a worker within ``timeout`` seconds.
+
+        ``admitted`` jobs belong to a request already let in (the groups of a
+        split batch): they wait their turn even when the waiting room is full.
 
         Raises
         ------
@@ -440,7 +443,7 @@ class WorkerPool:
         """
         if self._closed or self._loop is None:
             raise PoolClosed()
-        if not self._idle and self.waiting >= self.queue_size:
+        if not admitted and not self._idle and self.waiting >= self.queue_size:
             raise Overloaded()
         started = time.monotonic()
         worker = await self._acquire(job, timeout)

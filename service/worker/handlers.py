@@ -29,6 +29,7 @@ from service.contract.field_errors import field_errors
 from service.contract.jobs import Job, Outcome
 from service.contract.models import KNOWN_FIELDS, BandsSpec, BandwidthRequest, BatchRequest, SmoothRequest
 from service.worker import arrow_codec
+from service.worker.batch_split import series_spans
 from service.worker.memory import check_budget, request_bytes, smooth_bytes
 
 log = logging.getLogger("bandwise.worker")
@@ -45,6 +46,9 @@ class JobContext:
         self.validation_context = {"limits": limits}
         self.gzip_min_bytes = gzip_min_bytes
         self.gzip_level = gzip_level
+        #: set by the batch handler for the job just run: slots not started before the deadline, points listed
+        self.unfinished = 0
+        self.listed = 0
 
 
 # ----------------------------------------------------------------- helpers
@@ -390,10 +394,19 @@ def _batch_job(job: Job, ctx: JobContext) -> tuple[Any, int]:
             "Too many points in one batch.",
             errors=[{"field": "series", "message": f"at most {limits['max_batch_points']} points over all series are allowed (BANDWISE_MAX_BATCH_POINTS), got {total}; split the batch", "type": "too_long"}],
         )
+    offset = int(job.params.get("offset", 0))
+    soft_deadline = job.params.get("soft_deadline")
     results: list[Any] = []
     points = 0
-    for index, item in enumerate(envelope.series):
+    unfinished = 0
+    longest = 0.0
+    for index, item in enumerate(envelope.series, start=offset):
         instance = f"{job.path}#series[{index}]"
+        started = time.monotonic()
+        if soft_deadline is not None and started + longest > float(soft_deadline):
+            results.append({"problem": problem_document("deadline-exceeded", _SLOT_DEADLINE_DETAIL, instance=instance)})
+            unfinished += 1
+            continue
         try:
             req = SmoothRequest.model_validate(item, context=ctx.validation_context)
         except ValidationError as exc:
@@ -406,7 +419,24 @@ def _batch_job(job: Job, ctx: JobContext) -> tuple[Any, int]:
             points += len(req.x)
         except ProblemError as problem:
             results.append({"problem": problem_document(problem.slug, problem.detail, instance=instance)})
+        longest = max(longest, time.monotonic() - started)
+    ctx.unfinished = unfinished
+    ctx.listed = total
+    if job.params.get("part"):
+        return results, points  # one group of a split batch: the HTTP process joins the arrays
     return {"results": results}, points
+
+
+_SLOT_DEADLINE_DETAIL = (
+    "This series was not computed before the batch's deadline; the other slots are kept. "
+    "Send the series marked deadline-exceeded again, in a smaller batch or to another replica."
+)
+
+
+def _batch_plan_job(job: Job, ctx: JobContext) -> tuple[Any, int]:
+    """Byte ranges of the series of a batch body, so the HTTP process can cut it into groups."""
+    spans = series_spans(job.body, ctx.limits.get("max_batch_series", 1_000))
+    return {"spans": None if spans is None else [value for span in spans for value in span]}, 0
 
 
 def _kernels_job(job: Job, ctx: JobContext) -> tuple[Any, int]:
@@ -461,6 +491,7 @@ def _ping_job(job: Job, ctx: JobContext) -> tuple[Any, int]:
 HANDLERS: dict[str, Callable[[Job, JobContext], tuple[Any, int]]] = {
     "smooth": _smooth_job,
     "batch": _batch_job,
+    "batch_plan": _batch_plan_job,
     "bandwidth": _bandwidth_job,
     "kernels": _kernels_job,
     "demo_list": _demo_list_job,
@@ -484,6 +515,7 @@ def run_job(job: Job, ctx: JobContext) -> Outcome:
     """
     started = time.perf_counter()
     handler = HANDLERS.get(job.kind)
+    ctx.unfinished = ctx.listed = 0
     try:
         if handler is None:
             raise RuntimeError(f"unknown job kind {job.kind!r}")
@@ -491,7 +523,7 @@ def run_job(job: Job, ctx: JobContext) -> Outcome:
         if job.accept_arrow:
             return Outcome(200, arrow_codec.write_answer(result), ARROW_STREAM, None, points, None, time.perf_counter() - started)
         payload, encoding = _encode(orjson.dumps(result, option=_DUMP_OPTIONS), job, ctx)
-        return Outcome(200, payload, "application/json", encoding, points, None, time.perf_counter() - started)
+        return Outcome(200, payload, "application/json", encoding, points, None, time.perf_counter() - started, unfinished=ctx.unfinished, listed=ctx.listed)
     except ProblemError as problem:
         body = problem_bytes(problem.slug, problem.detail, instance=job.path, request_id=job.request_id, errors=problem.errors)
         return Outcome(problem.status, body, PROBLEM_MEDIA_TYPE, None, 0, problem.slug, time.perf_counter() - started)
