@@ -39,6 +39,7 @@ MODULES: list[tuple[str, list[str], list[str]]] = [
     ("bench_selection", [], ["--max-n", "1e4"]),
     ("bench_bootstrap", [], ["--n", "1e4", "--replicates", "200"]),
     ("bench_service", [], ["--quick"]),
+    ("bench_time_axis", [], ["--n", "1e5", "--rounds", "2"]),
     ("study_selection", [], ["--replications", "5"]),
     ("study_coverage", [], ["--replications", "20"]),
 ]
