@@ -348,7 +348,7 @@ class PredictionOut(_Out):
     interval_lower: float | None = Field(None, description="Lower end of the prediction interval for a NEW READING at x (curve uncertainty plus noise, at bands.level; wider than the band). Present when bands were asked for.")
     interval_upper: float | None = Field(None, description="Upper end of the prediction interval for a NEW READING at x (see `interval_lower`). Present when bands were asked for.")
     extrapolated: bool = Field(..., description="True when x lies outside the data range: the estimate extends the local fit beyond the data and can be far off.")
-    in_gap: bool = Field(False, description="True when x lies strictly inside a gap of the data (see `gaps`): the estimate there is carried over from readings on either side and was never measured.")
+    in_gap: bool = Field(False, description="True when x lies strictly inside a gap of the data (see `gaps`): the estimate there is carried over from readings on either side and was never measured. Present on every prediction when the answer has gaps; absent (false) otherwise.")
 
 
 class BandsInfo(_Out):

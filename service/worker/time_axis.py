@@ -221,9 +221,7 @@ def finish(body: dict[str, Any], prep: Prepared) -> dict[str, Any]:
         if count:
             message += f"; {count} prediction point{'s lie' if count > 1 else ' lies'} inside a gap (in_gap), where the estimate was never measured"
         cautions.append(_Caution("data_gap", message + "."))
-    else:
-        for p in predictions:
-            p["in_gap"] = False
+    # without gaps the predictions keep the layout they always had (in_gap absent means false)
     gaps = [{"start": a, "end": b} for a, b in zip(starts.tolist(), ends.tolist(), strict=True)]
 
     if prep.n_missing:

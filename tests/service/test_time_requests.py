@@ -14,6 +14,8 @@ from typing import Any
 import numpy as np
 import orjson
 import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
 
 from estimators import fit
 from service.contract.jobs import Job
@@ -68,6 +70,24 @@ def test_timestamp_request_equals_epoch_ms_request(seed: int) -> None:
         duration = text["bandwidth"]["duration"]
         assert duration.startswith("P") and numbers["bandwidth"].get("duration") is None
         assert abs(_duration_ms(duration) - text["bandwidth"]["value"]) <= 0.5
+
+
+@settings(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(
+    millis=st.lists(st.integers(0, 40 * 86_400_000), min_size=6, max_size=40, unique=True),
+    offsets=st.lists(st.sampled_from([-720, -345, 0, 45, 60, 330, 840]), min_size=40, max_size=40),
+    bandwidth_minutes=st.integers(30, 7 * 24 * 60),
+)
+def test_property_any_timestamp_request_equals_the_epoch_ms_request(millis: list[int], offsets: list[int], bandwidth_minutes: int) -> None:
+    moments = [START + dt.timedelta(milliseconds=m) for m in millis]
+    y = [math.sin(m / 3.6e6) for m in millis]
+    text = {"x": [_rfc3339(m, o) for m, o in zip(moments, offsets, strict=False)], "y": y, "bandwidth": f"PT{bandwidth_minutes}M", "curve": {"points": 15}, "max_gap": None}
+    numbers = {"x": [_ms(m) for m in moments], "y": y, "bandwidth": bandwidth_minutes * 60_000, "curve": {"points": 15}, "max_gap": None}
+    (status_t, a), (status_n, b) = _post("smooth", text), _post("smooth", numbers)
+    assert status_t == status_n
+    if status_t == 200:
+        assert a["curve"]["estimate"] == b["curve"]["estimate"] and a["bandwidth"]["value"] == b["bandwidth"]["value"]
+        assert [_ms(dt.datetime.fromisoformat(t)) for t in a["curve"]["x"]] == [round(v) for v in b["curve"]["x"]]
 
 
 def _duration_ms(text: str) -> float:
@@ -176,7 +196,7 @@ def test_numeric_x_answers_as_before_with_an_empty_gap_list() -> None:
     x = np.linspace(0, 10, 80)
     status, body = _post("smooth", {"x": x.tolist(), "y": np.sin(x).tolist(), "bandwidth": 0.7, "curve": {"points": 12}, "predict_at": [2.5]})
     assert status == 200
-    assert body["gaps"] == [] and body["predictions"][0]["in_gap"] is False and body["diagnostics"]["n_missing"] == 0
+    assert body["gaps"] == [] and "in_gap" not in body["predictions"][0] and body["diagnostics"]["n_missing"] == 0
     reference = fit(x, np.sin(x), bandwidth=0.7)
     assert np.allclose(body["curve"]["estimate"], reference.predict(np.linspace(0, 10, 12)), rtol=1e-12)
     assert "duration" not in body["bandwidth"] or body["bandwidth"]["duration"] is None
