@@ -40,10 +40,24 @@ def _depot(hours: int) -> tuple[list[float], list[float]]:
     return d.x[:hours].tolist(), d.y[:hours].tolist()
 
 
+def _depot_times(first: int, last: int) -> tuple[list[str], list[float | None]]:
+    """Parcel depot readings ``first:last`` with x as RFC 3339 date-times (UTC) and two counts missing (null)."""
+    import numpy as np
+
+    from estimators.demo import parcel_depot
+
+    d = parcel_depot()
+    stamps = np.datetime_as_string(d.x[first:last].astype("int64").astype("datetime64[ms]"), unit="s", timezone="UTC").tolist()
+    counts: list[float | None] = d.y[first:last].tolist()
+    counts[5] = counts[6] = None  # the scanner dropped two hourly counts
+    return stamps, counts
+
+
 def build() -> list[dict[str, Any]]:
     """The examples: index entry plus request body each."""
     cx, cy = _cold(12)
     dx, dy = _depot(168)
+    tx, ty = _depot_times(340, 460)
     return [
         {
             "name": "fixed_bandwidth",
@@ -98,6 +112,15 @@ def build() -> list[dict[str, Any]]:
             "summary": "Parcel depot, epoch-millisecond timestamps",
             "description": "One week of hourly parcel counts; x is epoch milliseconds, so the bandwidth of three hours is 10,800,000 ms. The last prediction is one hour past the data and is flagged extrapolated.",
             "request": {"x": dx, "y": dy, "bandwidth": 3 * HOUR_MS, "kernel": "gaussian", "curve": {"points": 28}, "predict_at": [dx[0] + 34 * HOUR_MS, dx[-1] + HOUR_MS]},
+        },
+        {
+            "name": "time_axis_gap",
+            "path": "/v1/smooth",
+            "status": 200,
+            "summary": "Parcel depot, RFC 3339 timestamps, a 31-hour outage and two missing counts",
+            "description": "x as RFC 3339 date-times, bandwidth chosen automatically (answered in ms and as an ISO 8601 duration), two null counts left out "
+            "(missing_values), the scanner outage found as a gap: the curve is null inside it and the prediction there is flagged in_gap (data_gap).",
+            "request": {"x": tx, "y": ty, "curve": {"points": 24}, "predict_at": ["2025-06-17T12:00:00Z", "2025-06-19T06:00:00+02:00"], "bands": {"method": "analytic"}},
         },
         {
             "name": "bandwidth_selection",

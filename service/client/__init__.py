@@ -90,6 +90,7 @@ from service.client.results import (
     to_numpy,
 )
 from service.client.retry import RetryPolicy, parse_retry_after
+from service.client.time_values import is_time_axis, time_options, to_rfc3339
 from service.contract.arrow_layout import ARROW_STREAM
 from service.contract.errors import REASON_PHRASES
 from service.contract.field_errors import RENAMED_FIELDS, field_errors
@@ -129,7 +130,7 @@ __all__ = [
 
 log = logging.getLogger("bandwise.client")
 
-ArrayLike = Sequence[float] | np.ndarray
+ArrayLike = Sequence[float] | Sequence[Any] | np.ndarray  # numbers, or date-times for x (datetime64, datetime, RFC 3339)
 DEFAULT_TIMEOUT = httpx.Timeout(60.0, connect=5.0)
 USER_AGENT = f"bandwise-client/{__version__}"
 
@@ -280,6 +281,16 @@ def _numbers(values: Any, name: str, errors: list[dict[str, str]]) -> np.ndarray
     return array
 
 
+def _times(values: Any, name: str, errors: list[dict[str, str]]) -> np.ndarray | None:
+    """Date-times (``datetime64``, ``datetime``, RFC 3339 strings) as an object array of RFC 3339 strings (None for NaT)."""
+    try:
+        text = to_rfc3339(values)
+    except (TypeError, ValueError) as exc:
+        errors.append({"field": name, "message": f"must hold date-times only: {exc}", "type": "wrong_type"})
+        return None
+    return np.array(text, dtype=object)
+
+
 def _unknown_option_message(name: str, model: type[BaseModel]) -> str:
     known = sorted(set(model.model_fields) - set(_DATA_FIELDS))
     close = difflib.get_close_matches(name, known, n=1)
@@ -312,7 +323,10 @@ def _series_body(x: Any, y: Any, options: Mapping[str, Any], model: type[BaseMod
             raise TypeError(f"pass {key} as a positional argument, not as an option")
     weights = options.pop("weights", None)
     before = len(errors)
-    xa = _numbers(x, name("x"), errors)
+    time_x = is_time_axis(x)
+    if time_x:
+        options = time_options(options)
+    xa = _times(x, name("x"), errors) if time_x else _numbers(x, name("x"), errors)
     ya = _numbers(y, name("y"), errors)
     wa = _numbers(weights, name("weights"), errors) if weights is not None else None
     if xa is not None and xa.size < 2:
@@ -331,7 +345,7 @@ def _series_body(x: Any, y: Any, options: Mapping[str, Any], model: type[BaseMod
         _check_options(plain, model, prefix, errors, weights is not None)
     if len(errors) > before:
         return {}
-    body: dict[str, Any] = {"x": xa, "y": ya}
+    body: dict[str, Any] = {"x": xa.tolist() if time_x and xa is not None else xa, "y": ya}
     if wa is not None:
         body["weights"] = wa
     body.update(plain)
@@ -598,7 +612,12 @@ class BandwiseClient(_ClientBase):
         Parameters
         ----------
         x, y : array_like
-            Same length, at least 2 finite numbers each (lists or numpy arrays).
+            Same length, at least 2 finite numbers each (lists or numpy arrays). ``x`` may also hold
+            date-times: a ``datetime64`` array, ``datetime`` objects (pandas timestamps too; naive ones
+            read as UTC) or RFC 3339 strings; then ``predict_at`` and ``curve["at"]`` may too, lengths
+            (``bandwidth``, ``bandwidth_min``, ``bandwidth_max``, ``max_gap``) may be ``timedelta``,
+            ``timedelta64`` or ISO 8601 durations (``"PT3H"``), and ``result.curve.arrays().x`` is
+            ``datetime64[ms]``.
         **options
             All optional; the service's defaults apply to what is not given:
             ``weights`` (array >= 0), ``kernel`` ("gaussian"), ``degree``

@@ -44,11 +44,25 @@ def to_numpy(values: Iterable[float | None] | None) -> np.ndarray:
     return np.array(values if isinstance(values, list) else list(values), dtype=float)
 
 
+def axis_to_numpy(values: Iterable[float | str | None]) -> np.ndarray:
+    """x values of an answer: float64 for a numeric axis, ``datetime64[ms]`` (UTC) for RFC 3339 date-times.
+
+    Parameters
+    ----------
+    values : iterable of float, str or None
+        E.g. ``result.curve.x``; the service writes date-times in UTC with a ``Z``.
+    """
+    items = values if isinstance(values, list) else list(values)
+    if items and isinstance(items[0], str):
+        return np.array([str(v).rstrip("Zz") for v in items], dtype="datetime64[ms]")
+    return to_numpy(items)  # type: ignore[arg-type]
+
+
 @dataclass(frozen=True)
 class CurveArrays:
     """The curve as numpy arrays; band arrays are None when bands were not asked for."""
 
-    x: np.ndarray
+    x: np.ndarray  # float64, or datetime64[ms] when x was sent as date-times
     estimate: np.ndarray
     lower: np.ndarray | None
     upper: np.ndarray | None
@@ -115,7 +129,7 @@ class CurveResult(CurveOut):
 
     def arrays(self) -> CurveArrays:
         """The curve as float arrays (NaN where the estimate or band is null)."""
-        return CurveArrays(to_numpy(self.x), to_numpy(self.estimate), _optional(self.lower), _optional(self.upper), _optional(self.se))
+        return CurveArrays(axis_to_numpy(self.x), to_numpy(self.estimate), _optional(self.lower), _optional(self.upper), _optional(self.se))
 
 
 class FittedResult(FittedOut):
@@ -159,7 +173,7 @@ class SmoothResult(SmoothResponse, _Answer):
             return to_numpy(getattr(row, name) for row in rows)
 
         return PredictionArrays(
-            x=to_numpy(row.x for row in rows),
+            x=axis_to_numpy(row.x for row in rows),
             estimate=to_numpy(row.estimate for row in rows),
             lower=column("lower"),
             upper=column("upper"),

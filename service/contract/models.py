@@ -22,8 +22,10 @@ from pydantic import (
     ConfigDict,
     Field,
     PlainValidator,
+    TypeAdapter,
     ValidationInfo,
     WithJsonSchema,
+    WrapValidator,
     model_validator,
 )
 
@@ -53,11 +55,11 @@ BANDWIDTH_MESSAGE = 'must be a finite number > 0 or the string "auto"'
 
 
 def _bandwidth(value: Any) -> float | str:
-    """Accept ``"auto"`` or a finite number > 0 (JSON number, not a string)."""
+    """Accept ``"auto"``, a finite number > 0 (JSON number, not a string) or an ISO 8601 duration (read in the worker)."""
     if isinstance(value, str):
-        if value == "auto":
+        if value == "auto" or _looks_like_duration(value):
             return value
-        raise FieldProblem("not_allowed", BANDWIDTH_MESSAGE)
+        raise FieldProblem("not_allowed", BANDWIDTH_MESSAGE + " (with timestamps, also an ISO 8601 duration such as PT3H)")
     if isinstance(value, bool) or not isinstance(value, (int, float)):
         raise FieldProblem("wrong_type", BANDWIDTH_MESSAGE)
     number = float(value)
@@ -68,13 +70,107 @@ def _bandwidth(value: Any) -> float | str:
     return number
 
 
+DURATION_MESSAGE = "must be a finite number > 0, or with timestamps an ISO 8601 duration such as PT90M, PT3H, P2D or P1W"
+_DURATION_SCHEMA = {"type": "string", "pattern": "^P", "description": "ISO 8601 duration in weeks, days, hours, minutes or seconds (only with timestamp x)."}
+
+
+def _looks_like_duration(value: str) -> bool:
+    """The shape of an ISO 8601 duration; the worker reads it and refuses calendar units (Y, M)."""
+    return value.startswith("P") and 1 < len(value) <= 64
+
+
+def _length(value: Any) -> float | str:
+    """A length along x: a finite number > 0, or an ISO 8601 duration string (read in the worker)."""
+    if isinstance(value, str):
+        if _looks_like_duration(value):
+            return value
+        raise FieldProblem("bad_duration", DURATION_MESSAGE)
+    if isinstance(value, bool) or not isinstance(value, (int, float)):
+        raise FieldProblem("wrong_type", DURATION_MESSAGE)
+    number = float(value)
+    if not math.isfinite(number):
+        raise FieldProblem("not_finite", DURATION_MESSAGE)
+    if number <= 0:
+        raise FieldProblem("too_small", DURATION_MESSAGE)
+    return number
+
+
+Length = Annotated[
+    float | str,
+    PlainValidator(_length),
+    WithJsonSchema({"oneOf": [{"type": "number", "exclusiveMinimum": 0}, _DURATION_SCHEMA]}),
+]
+
+
+def _max_gap(value: Any) -> float | str | None:
+    if value is None or value == "auto":
+        return value  # type: ignore[no-any-return]
+    return _length(value)
+
+
+MaxGap = Annotated[
+    float | str | None,
+    PlainValidator(_max_gap),
+    WithJsonSchema(
+        {
+            "oneOf": [{"type": "string", "const": "auto"}, {"type": "number", "exclusiveMinimum": 0}, _DURATION_SCHEMA, {"type": "null"}],
+            "description": 'Largest spacing between consecutive readings that is not a gap: "auto" (the rule in docs/api.md), a length in x units, '
+            "an ISO 8601 duration (timestamp x), or null (never split). Curve points strictly inside a gap are null.",
+            "default": "auto",
+        }
+    ),
+]
+
+_STRICT = ConfigDict(strict=True)
+_TEXT_LIST: TypeAdapter[list[str | None]] = TypeAdapter(list[str | None], config=_STRICT)
+_TEXT_LIST_NO_NULL: TypeAdapter[list[str]] = TypeAdapter(list[str], config=_STRICT)
+
+
+def _texts_or_numbers(value: Any, handler: Any) -> Any:
+    """An array of numbers (the usual validator), or of strings when its first non-null element is one.
+
+    Strings are RFC 3339 date-times, read in the worker; here only the JSON types are checked, so
+    a number among strings (or a string among numbers) is a ``wrong_type`` at its index.
+    """
+    if isinstance(value, list):
+        first = next((v for v in value[:64] if v is not None), None)
+        if isinstance(first, str):
+            return _TEXT_LIST.validate_python(value)
+    return handler(value)
+
+
+def _texts_or_numbers_no_null(value: Any, handler: Any) -> Any:
+    if isinstance(value, list) and value and isinstance(value[0], str):
+        return _TEXT_LIST_NO_NULL.validate_python(value)
+    return handler(value)
+
+
+_TIMESTAMP_ITEM = {"type": "string", "format": "date-time"}
+XValues = Annotated[
+    list[Annotated[float, Field(allow_inf_nan=False)] | None],
+    WrapValidator(_texts_or_numbers),
+    WithJsonSchema(
+        {
+            "oneOf": [
+                {"type": "array", "items": {"type": ["number", "null"]}},
+                {"type": "array", "items": {"oneOf": [_TIMESTAMP_ITEM, {"type": "null"}]}},
+            ]
+        }
+    ),
+]
+Points = Annotated[
+    list[Annotated[float, Field(allow_inf_nan=False)]],
+    WrapValidator(_texts_or_numbers_no_null),
+    WithJsonSchema({"oneOf": [{"type": "array", "items": {"type": "number"}}, {"type": "array", "items": _TIMESTAMP_ITEM}]}),
+]
+
 Bandwidth = Annotated[
     float | Literal["auto"],
     PlainValidator(_bandwidth),
     WithJsonSchema(
         {
-            "oneOf": [{"type": "number", "exclusiveMinimum": 0}, {"type": "string", "const": "auto"}],
-            "description": 'Kernel bandwidth in x units (the kernel\'s own scale), or "auto" to choose it with `selector`.',
+            "oneOf": [{"type": "number", "exclusiveMinimum": 0}, {"type": "string", "const": "auto"}, _DURATION_SCHEMA],
+            "description": 'Kernel bandwidth in x units (the kernel\'s own scale; milliseconds for timestamp x, or an ISO 8601 duration), or "auto" to choose it with `selector`.',
             "default": "auto",
         }
     ),
@@ -94,7 +190,7 @@ class CurveSpec(_Strict):
     """Where to evaluate the smoothed curve: evenly spaced points, or given x values."""
 
     points: Annotated[int, Field(ge=2, description="Number of evenly spaced points over the x range (default 200, limit BANDWISE_MAX_CURVE_POINTS = 10,000).")] | None = None
-    at: list[Finite] | None = Field(None, description="Explicit x values (at most BANDWISE_MAX_CURVE_POINTS). Values outside the data range are extrapolated and flagged in `warnings`.")
+    at: Points | None = Field(None, description="Explicit x values, numbers or RFC 3339 date-times like x (at most BANDWISE_MAX_CURVE_POINTS). Values outside the data range are extrapolated and flagged in `warnings`.")
 
     @model_validator(mode="after")
     def _check(self, info: ValidationInfo) -> CurveSpec:
@@ -128,16 +224,17 @@ class BandsSpec(_Strict):
 
 
 class _DataFields(_Strict):
-    x: list[Finite] = Field(..., description="Predictor values (finite numbers; epoch-millisecond timestamps work as they are). At most BANDWISE_MAX_POINTS = 2,000,000.")
-    y: list[Finite] = Field(..., description="Responses, same length as x.")
-    weights: list[NonNegativeFinite] | None = Field(None, description="Optional case weights, same length as x, >= 0 and not all zero; points with weight 0 are ignored.")
+    x: XValues = Field(..., description="Predictor values: finite numbers (epoch-millisecond timestamps work as they are), or RFC 3339 date-times with any offset (read as UTC epoch milliseconds); not both in one array. null marks a missing reading (see `missing`). At most BANDWISE_MAX_POINTS = 2,000,000.")
+    y: list[Finite | None] = Field(..., description="Responses, same length as x; null marks a missing reading (see `missing`).")
+    weights: list[NonNegativeFinite | None] | None = Field(None, description="Optional case weights, same length as x, >= 0 and not all zero; points with weight 0 are ignored; null marks a missing value (see `missing`).")
+    missing: Literal["drop", "error"] = Field("drop", description='drop: a null in x, y or weights leaves that reading out (counted in diagnostics.n_missing, warning missing_values); error: nulls are refused with a 422 naming them.')
     kernel: KernelName = Field("gaussian", description="Kernel; see GET /v1/kernels for the constants.")
     degree: Degree = Field(1, description="Local polynomial degree: 0 = local constant (Nadaraya–Watson), 1 = local linear, 2 = local quadratic.")
     selector: SelectorName = Field("gcv", description="Bandwidth selector used when bandwidth is \"auto\". Automatic bandwidths can be implausible (too rough or too smooth): look at the scores and warnings.")
     rule: RuleName = Field("min", description="min: the best-scoring candidate; one_se: the smoothest candidate within one standard error of the best.")
     candidate_count: Annotated[int, Field(ge=2)] = Field(40, description="Number of candidate bandwidths scored by the selector (limit BANDWISE_MAX_CANDIDATES = 200). The answer's `bandwidth.candidates` lists them.")
-    bandwidth_min: PositiveFinite | None = Field(None, description="Smallest candidate bandwidth (default: chosen from the data spacing).")
-    bandwidth_max: PositiveFinite | None = Field(None, description="Largest candidate bandwidth (default: chosen from the data range).")
+    bandwidth_min: Length | None = Field(None, description="Smallest candidate bandwidth (default: chosen from the data spacing); an ISO 8601 duration with timestamp x.")
+    bandwidth_max: Length | None = Field(None, description="Largest candidate bandwidth (default: chosen from the data range); an ISO 8601 duration with timestamp x.")
 
     @model_validator(mode="after")
     def _check_data(self, info: ValidationInfo) -> Any:
@@ -153,12 +250,13 @@ class _DataFields(_Strict):
         if self.weights is not None:
             if len(self.weights) != n:
                 raise FieldProblem("invalid", f"weights has {len(self.weights)} values but x has {n}; give one weight per x", "weights")
-            if not any(w > 0 for w in self.weights):
+            if not any(w is not None and w > 0 for w in self.weights):
                 raise FieldProblem("invalid", "at least one weight must be > 0", "weights")
         limit = limits.get("max_candidates")
         if limit is not None and "candidate_count" in self.model_fields_set and self.candidate_count > limit:
             raise FieldProblem("too_large", f"at most {limit} candidates are allowed (BANDWISE_MAX_CANDIDATES), got {self.candidate_count}", "candidate_count")
-        if self.bandwidth_min is not None and self.bandwidth_max is not None and self.bandwidth_min >= self.bandwidth_max:
+        low, high = self.bandwidth_min, self.bandwidth_max
+        if isinstance(low, float) and isinstance(high, float) and low >= high:
             raise FieldProblem("invalid", "bandwidth_max must be greater than bandwidth_min", "bandwidth_max")
         selecting = getattr(self, "bandwidth", "auto") == "auto"
         if selecting and self.rule == "one_se" and self.selector not in SCORED_SELECTORS:
@@ -172,7 +270,8 @@ class SmoothRequest(_DataFields):
     bandwidth: Bandwidth = "auto"
     engine: EngineName = Field("auto", description="exact: windowed sums over the sorted data; binned: fast grid approximation for large n; auto picks by size.")
     curve: CurveSpec | None = Field(None, description='Where to evaluate the curve; default {"points": 200} evenly spaced over the x range.')
-    predict_at: list[Finite] | None = Field(None, description="New x values to predict at (at most BANDWISE_MAX_PREDICT_POINTS = 100,000). Values outside the data range are extrapolations and are flagged.")
+    max_gap: MaxGap = "auto"
+    predict_at: Points | None = Field(None, description="New x values (numbers, or RFC 3339 date-times when x holds them) to predict at (at most BANDWISE_MAX_PREDICT_POINTS = 100,000). Values outside the data range are extrapolations and are flagged.")
     bands: BandsSpec | None = Field(None, description="Ask for uncertainty bands. They are pointwise unless simultaneous is true.")
     include_fitted: bool = Field(False, description="Also return fitted values and residuals at the data points, in the order given.")
 
@@ -218,13 +317,14 @@ class BandwidthOut(_Out):
     candidates: list[float] | None = Field(..., description="Candidate bandwidths scored; null when given.")
     scores: list[float | None] | None = Field(..., description="Score of each candidate (lower is better); null where a candidate could not be scored.")
     gaussian_equivalent: float | None = Field(None, description="The chosen bandwidth expressed for a gaussian kernel, for comparing across kernels.")
+    duration: str | None = Field(None, description="With timestamp x: `value` (milliseconds) as an ISO 8601 duration, e.g. PT5H30M.")
 
 
 class CurveOut(_Out):
     """The smoothed curve. Bands, when present, are pointwise unless diagnostics.bands.simultaneous is true."""
 
-    x: list[float]
-    estimate: list[float | None] = Field(..., description="Estimate at each x; null where no data lies in the kernel window.")
+    x: list[float] | list[str] = Field(..., description="Curve x values: numbers, or RFC 3339 UTC date-times (Z, milliseconds) when x was given as date-times.")
+    estimate: list[float | None] = Field(..., description="Estimate at each x; null where no data lies in the kernel window and strictly inside a gap (see `gaps`; the band and se are null there too).")
     lower: list[float | None] | None = Field(None, description="Lower band (when bands were asked for).")
     upper: list[float | None] | None = Field(None, description="Upper band (when bands were asked for).")
     se: list[float | None] | None = Field(None, description="Pointwise standard error of `estimate` (when bands were asked for). The bands are centred on `band_center` when present, so `estimate ± z·se` is not the band.")
@@ -241,13 +341,14 @@ class FittedOut(_Out):
 class PredictionOut(_Out):
     """Prediction at one new x."""
 
-    x: float
+    x: float | str = Field(..., description="The x asked for; an RFC 3339 UTC date-time when x was given as date-times.")
     estimate: float | None = Field(..., description="The curve's estimate at x; null where no data lies in the kernel window.")
     lower: float | None = Field(None, description="Lower end of the band for the CURVE at x: the same band as curve.lower/curve.upper (method, level, pointwise or simultaneous as asked). Present when bands were asked for.")
     upper: float | None = Field(None, description="Upper end of the band for the CURVE at x (see `lower`). Present when bands were asked for.")
     interval_lower: float | None = Field(None, description="Lower end of the prediction interval for a NEW READING at x (curve uncertainty plus noise, at bands.level; wider than the band). Present when bands were asked for.")
     interval_upper: float | None = Field(None, description="Upper end of the prediction interval for a NEW READING at x (see `interval_lower`). Present when bands were asked for.")
     extrapolated: bool = Field(..., description="True when x lies outside the data range: the estimate extends the local fit beyond the data and can be far off.")
+    in_gap: bool = Field(False, description="True when x lies strictly inside a gap of the data (see `gaps`): the estimate there is carried over from readings on either side and was never measured. Present on every prediction when the answer has gaps; absent (false) otherwise.")
 
 
 class BandsInfo(_Out):
@@ -271,6 +372,14 @@ class DiagnosticsOut(_Out):
     x_min: float
     x_max: float
     bands: BandsInfo | None = None
+    n_missing: int = Field(0, description="Readings left out because x, y or the weight was null (missing: drop).")
+
+
+class GapOut(_Out):
+    """A stretch of x with no readings, wider than `max_gap`: the readings on either side."""
+
+    start: float | str = Field(..., description="The last reading before the gap (an RFC 3339 UTC date-time for timestamp x).")
+    end: float | str = Field(..., description="The first reading after the gap.")
 
 
 class WarningOut(_Out):
@@ -287,6 +396,7 @@ class SmoothResponse(_Out):
     curve: CurveOut
     fitted: FittedOut | None = Field(None, description="Present when include_fitted was true.")
     predictions: list[PredictionOut] = Field(..., description="One entry per predict_at value, in order (empty when none were asked for).")
+    gaps: list[GapOut] = Field(default_factory=list, description="Gaps in the data, in x order (empty when none); the curve is null strictly inside each.")
     diagnostics: DiagnosticsOut
     warnings: list[WarningOut]
 

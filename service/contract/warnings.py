@@ -21,5 +21,7 @@ WARNING_CODES: dict[str, str] = {
     "noise_not_estimable": "The fit passes through every data point, so the residuals carry no information about the noise: no band, standard error or prediction interval can be given. Use a larger bandwidth.",
     "pointwise_bands": "The bands are pointwise: each covers the curve at one x on its own, not the whole curve at once. Ask for simultaneous bands to cover the whole curve.",
     "empty_window": "Some curve or prediction points have no data inside the kernel window; the estimate there is null. Use a larger bandwidth or the gaussian kernel.",
+    "data_gap": "The data have gaps wider than max_gap (listed in `gaps`): the curve is null strictly inside them, and predictions there are flagged in_gap; an estimate inside a gap was never measured.",
+    "missing_values": "Some readings had a null in x, y or weights and were left out (diagnostics.n_missing says how many).",
     "extrapolation": "Some curve or prediction points lie outside the data range: the estimate there extends the local fit beyond the data and can be far off.",
 }

@@ -28,7 +28,7 @@ from service.contract.errors import PROBLEM_MEDIA_TYPE, ProblemError, problem_by
 from service.contract.field_errors import field_errors
 from service.contract.jobs import Job, Outcome
 from service.contract.models import KNOWN_FIELDS, BandsSpec, BandwidthRequest, BatchRequest, SmoothRequest
-from service.worker import arrow_codec
+from service.worker import arrow_codec, time_axis
 from service.worker.batch_split import series_spans
 from service.worker.memory import check_budget, request_bytes, smooth_bytes
 
@@ -130,10 +130,10 @@ def smooth_series(req: SmoothRequest, limits: dict[str, int], arrays: arrow_code
     ProblemError
         ``unsuitable-data`` when ``estimators`` rejects the data.
     """
-    x, y, weights = arrays if arrays is not None else (_array(req.x), _array(req.y), _array(req.weights))
+    prep = time_axis.prepare(req, arrays)  # timestamps, durations and nulls onto a numeric axis (422 when unreadable)
     try:
         with np.errstate(all="ignore"):
-            return _smooth_arrays(req, x, y, weights, limits)
+            return time_axis.finish(_smooth_arrays(prep.request, prep.x, prep.y, prep.weights, limits), prep)
     except ValueError as exc:
         raise ProblemError("unsuitable-data", str(exc)) from None
     except (ArithmeticError, MemoryError) as exc:
@@ -166,8 +166,8 @@ def _smooth_arrays(req: SmoothRequest, x: Any, y: Any, weights: Any, limits: dic
         rule=req.rule,
         engine=req.engine,
         candidates=_candidates(req, limits),
-        bandwidth_min=req.bandwidth_min,
-        bandwidth_max=req.bandwidth_max,
+        bandwidth_min=_length(req.bandwidth_min),
+        bandwidth_max=_length(req.bandwidth_max),
     )
     cautions: list[Any] = list(s.warnings)
 
@@ -283,6 +283,11 @@ def _grid(lo: float, hi: float, count: int) -> np.ndarray:
     return grid
 
 
+def _length(value: float | str | None) -> float | None:
+    """A length of a request read onto the numeric axis (``time_axis.prepare`` has turned durations into ms)."""
+    return None if value is None else float(value)
+
+
 def _candidates(req: Any, limits: dict[str, int]) -> int:
     """The candidate count asked for; the default is capped by the operator's limit."""
     limit = limits.get("max_candidates")
@@ -325,26 +330,27 @@ def _point_cautions(what: str, points: np.ndarray, estimate: np.ndarray, extrapo
 
 def select_only(req: BandwidthRequest, limits: dict[str, int], arrays: arrow_codec.Arrays | None = None) -> dict[str, Any]:
     """Answer one validated bandwidth request (``arrays`` as for :func:`smooth_series`)."""
-    x, y, weights = arrays if arrays is not None else (_array(req.x), _array(req.y), _array(req.weights))
+    prep = time_axis.prepare(req, arrays)
+    req = prep.request
     try:
         with np.errstate(all="ignore"):
             sel = select_bandwidth(
-                x,
-                y,
+                prep.x,
+                prep.y,
                 kernel=req.kernel,
                 degree=req.degree,
                 selector=req.selector,
                 rule=req.rule,
-                weights=weights,
+                weights=prep.weights,
                 candidates=_candidates(req, limits),
-                bandwidth_min=req.bandwidth_min,
-                bandwidth_max=req.bandwidth_max,
+                bandwidth_min=_length(req.bandwidth_min),
+                bandwidth_max=_length(req.bandwidth_max),
             )
     except ValueError as exc:
         raise ProblemError("unsuitable-data", str(exc)) from None
     except (ArithmeticError, MemoryError) as exc:
         raise _extreme(exc) from None
-    return {"bandwidth": _bandwidth_object(sel.chosen, sel), "warnings": _cautions(sel.warnings)}
+    return time_axis.finish_bandwidth({"bandwidth": _bandwidth_object(sel.chosen, sel), "warnings": _cautions(sel.warnings)}, prep)
 
 
 # ----------------------------------------------------------------- job kinds
@@ -418,7 +424,7 @@ def _batch_job(job: Job, ctx: JobContext) -> tuple[Any, int]:
             results.append(smooth_series(req, limits))
             points += len(req.x)
         except ProblemError as problem:
-            results.append({"problem": problem_document(problem.slug, problem.detail, instance=instance)})
+            results.append({"problem": problem_document(problem.slug, problem.detail, instance=instance, errors=problem.errors)})
         longest = max(longest, time.monotonic() - started)
     ctx.unfinished = unfinished
     ctx.listed = total

@@ -48,7 +48,7 @@ CASES: list[tuple[str, str, str, dict[str, Any], int, str | None]] = [
     ("unknown field (typo)", "POST", "/v1/smooth", {"json": _with(bandwith=2.0)}, 422, "bandwith"),
     ("numbers as strings", "POST", "/v1/smooth", {"json": _with(x=["1", "2", "3", "4", "5", "6"])}, 422, "x[0]"),
     ("booleans as numbers", "POST", "/v1/smooth", {"json": _with(y=[True, 1, 2, 3, 4, 5])}, 422, "y[0]"),
-    ("null in x", "POST", "/v1/smooth", {"json": _with(x=[1, None, 3, 4, 5, 6])}, 422, "x[1]"),
+    ("null in x", "POST", "/v1/smooth", {"json": _with(x=[1, None, 3, 4, 5, 6], missing="error")}, 422, "x"),  # nulls are dropped unless missing is "error"
     ("length mismatch", "POST", "/v1/smooth", {"json": _with(y=[1.0, 2.0])}, 422, "y"),
     ("one point", "POST", "/v1/smooth", {"json": _with(x=[1.0], y=[2.0])}, 422, "x"),
     ("negative weight", "POST", "/v1/smooth", {"json": _with(weights=[1, 1, -1, 1, 1, 1])}, 422, "weights[2]"),

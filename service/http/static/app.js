@@ -456,6 +456,13 @@ function renderSummary(request, response, chart, selectorName) {
   }
   const undefinedCount = est.filter((v) => v === null).length;
   if (undefinedCount) parts.push(`At ${undefinedCount} of ${est.length} curve points the estimate is undefined (no data inside the kernel window) and the line is broken there.`);
+  const gaps = response.gaps || [];
+  if (gaps.length) {
+    const spans = gaps.map((g) => `${formatX(g.start)} to ${formatX(g.end)}`).join("; ");
+    parts.push(`The data have ${gaps.length} gap${gaps.length > 1 ? "s" : ""} with no readings (${spans}): the curve and band are not drawn across ${gaps.length > 1 ? "them" : "it"}.`);
+  }
+  const missing = (response.diagnostics || {}).n_missing || 0;
+  if (missing) parts.push(`${missing.toLocaleString("en")} reading${missing > 1 ? "s" : ""} with a missing value ${missing > 1 ? "were" : "was"} left out.`);
   if (request.bands && curve.lower && curve.upper) {
     const widths = curve.upper.map((u, i) => (u === null || curve.lower[i] === null ? null : u - curve.lower[i])).filter((w) => w !== null);
     const mean = widths.reduce((a, b) => a + b, 0) / Math.max(1, widths.length);
@@ -472,7 +479,7 @@ function renderSummary(request, response, chart, selectorName) {
     if (p.interval_lower !== null && p.interval_lower !== undefined) {
       text += `, with a prediction interval for a new observation from ${formatY(p.interval_lower)} to ${formatY(p.interval_upper)}`;
     }
-    text += p.extrapolated ? " — extrapolated beyond the data, so unreliable." : ".";
+    text += p.extrapolated ? " — extrapolated beyond the data, so unreliable." : p.in_gap ? " — inside a gap in the data, so never measured." : ".";
     parts.push(text);
   }
   const n = (response.warnings || []).length;
