@@ -118,9 +118,9 @@ def build() -> list[dict[str, Any]]:
             "path": "/v1/smooth",
             "status": 200,
             "summary": "Parcel depot, RFC 3339 timestamps, a 31-hour outage and two missing counts",
-            "description": "x as RFC 3339 date-times, bandwidth chosen automatically (answered in ms and as an ISO 8601 duration), two null counts left out "
+            "description": "x as RFC 3339 date-times, a bandwidth of three hours as an ISO 8601 duration (answered in ms and as a duration), two null counts left out "
             "(missing_values), the scanner outage found as a gap: the curve is null inside it and the prediction there is flagged in_gap (data_gap).",
-            "request": {"x": tx, "y": ty, "curve": {"points": 24}, "predict_at": ["2025-06-17T12:00:00Z", "2025-06-19T06:00:00+02:00"], "bands": {"method": "analytic"}},
+            "request": {"x": tx, "y": ty, "bandwidth": "PT3H", "curve": {"points": 24}, "predict_at": ["2025-06-17T12:00:00Z", "2025-06-19T06:00:00+02:00"], "bands": {"method": "analytic"}},
         },
         {
             "name": "bandwidth_selection",
