@@ -288,6 +288,17 @@ def _times(values: Any, name: str, errors: list[dict[str, str]]) -> np.ndarray |
     except (TypeError, ValueError) as exc:
         errors.append({"field": name, "message": f"must hold date-times only: {exc}", "type": "wrong_type"})
         return None
+    if any(t is not None for t in text):
+        # the service's own reader, so a string it would refuse is refused here, before the upload
+        from service.contract.timeaxis import TimeValueError, parse_timestamps
+
+        try:
+            parse_timestamps(["1970-01-01T00:00:00Z" if t is None else t for t in text])
+        except TimeValueError as exc:
+            where = f"{name}[{exc.index}]: " if exc.index is not None else ""
+            reason = str(exc).split(" = ", 1)[-1] if exc.index is not None else str(exc)
+            errors.append({"field": name, "message": f"must hold RFC 3339 date-times; {where}{reason}", "type": "bad_timestamp"})
+            return None
     return np.array(text, dtype=object)
 
 

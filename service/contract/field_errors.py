@@ -30,6 +30,7 @@ FIELD_ERROR_CODES: dict[str, str] = {
     "invalid": "A check on the value or between fields failed; the message says which and why.",
     "bad_timestamp": "A string that is not an RFC 3339 date-time with a time zone offset (or has a year outside 0001-9999), or a date-time where x is numeric; the message gives the index and how to write it.",
     "bad_duration": "A length that is not an ISO 8601 duration in fixed units (weeks, days, hours, minutes, seconds; years and months depend on the calendar), or a duration where x is numeric.",
+    "repeated_field": "A name given twice in one JSON object; send each field once.",
     "null_value": "A null (a missing reading) in a request with missing: \"error\"; the message lists where.",
     "truncated": f"More errors than shown (the first {MAX_FIELD_ERRORS} are kept).",
 }

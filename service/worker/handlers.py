@@ -27,6 +27,7 @@ from service.contract.arrow_layout import ARROW_STREAM
 from service.contract.errors import PROBLEM_MEDIA_TYPE, ProblemError, problem_bytes, problem_document
 from service.contract.field_errors import field_errors
 from service.contract.jobs import Job, Outcome
+from service.contract.json_keys import repeated_keys
 from service.contract.models import KNOWN_FIELDS, BandsSpec, BandwidthRequest, BatchRequest, SmoothRequest
 from service.worker import arrow_codec, time_axis
 from service.worker.batch_split import series_spans
@@ -356,6 +357,17 @@ def select_only(req: BandwidthRequest, limits: dict[str, int], arrays: arrow_cod
 # ----------------------------------------------------------------- job kinds
 
 
+def _refuse_repeated_names(body: bytes) -> None:
+    """A 422 when one JSON object names a field twice: which value was meant is a guess (RFC 8259, section 4)."""
+    names = repeated_keys(body)
+    if names:
+        raise ProblemError(
+            "validation-error",
+            "The request names a field twice; see errors.",
+            errors=[{"field": name, "message": f"'{name}' is given more than once in one object; send it once", "type": "repeated_field"} for name in names],
+        )
+
+
 def _smooth_job(job: Job, ctx: JobContext) -> tuple[Any, int]:
     if job.content_type == ARROW_STREAM:
         req, arrays = arrow_codec.read_request(job.body, SmoothRequest, ctx.validation_context)
@@ -364,6 +376,7 @@ def _smooth_job(job: Job, ctx: JobContext) -> tuple[Any, int]:
         req = SmoothRequest.model_validate_json(job.body, context=ctx.validation_context)
     except ValidationError as exc:
         raise _validation_problem(exc, "The smooth request has invalid fields; see errors.", SmoothRequest) from None
+    _refuse_repeated_names(job.body)
     check_budget(smooth_bytes(req, len(job.body), ctx.limits.get("default_curve_points", 200)), ctx.limits)
     return smooth_series(req, ctx.limits), len(req.x)
 
@@ -376,6 +389,7 @@ def _bandwidth_job(job: Job, ctx: JobContext) -> tuple[Any, int]:
         req = BandwidthRequest.model_validate_json(job.body, context=ctx.validation_context)
     except ValidationError as exc:
         raise _validation_problem(exc, "The bandwidth request has invalid fields; see errors.", BandwidthRequest) from None
+    _refuse_repeated_names(job.body)
     check_budget(request_bytes(len(job.body), len(req.x), 0, False), ctx.limits)
     return select_only(req, ctx.limits), len(req.x)
 
@@ -385,6 +399,7 @@ def _batch_job(job: Job, ctx: JobContext) -> tuple[Any, int]:
         envelope = BatchRequest.model_validate_json(job.body)
     except ValidationError as exc:
         raise _validation_problem(exc, "The batch request has invalid fields; see errors.", BatchRequest) from None
+    _refuse_repeated_names(job.body)
     limits = ctx.limits
     count = len(envelope.series)
     if count > limits.get("max_batch_series", count):

@@ -86,12 +86,12 @@ def test_empty_and_single_point(offline: BandwiseClient) -> None:
 @pytest.mark.parametrize(
     "x",
     [
-        ["1", "2", "3"],  # strings are never numbers on the wire (the service's models are strict)
+        ["1", "2", "3"],  # strings are date-times on the wire (RFC 3339, section 5.6), never numbers
         [1.0, None, 3.0],
         [True, False, True],
         [[1.0, 2.0], [3.0, 4.0]],
         "1,2,3",
-        np.array(["2025-06-02T00:00", "2025-06-02T00:15", "2025-06-02T00:30"], dtype="datetime64[m]"),
+        ["2025-06-02T00:00:00Z", "2025-06-02T00:15:00", "2025-06-02T00:30:00Z"],  # no offset: not RFC 3339 (section 5.6)
     ],
 )
 def test_not_a_flat_list_of_numbers(offline: BandwiseClient, x: Any) -> None:

@@ -92,7 +92,7 @@ def test_errors_from_the_live_server(live_server: LiveServer) -> None:
     with BandwiseClient(live_server.url, retry=RETRY) as client, pytest.raises(Unauthorized) as info:
         client.kernels()
     assert info.value.status == 401 and info.value.request_id
-    n = 60_000  # about 2.3 MB of JSON, above the 1 MiB limit of this server
+    n = 100_000  # 1.6 MB as Arrow columns (two float64 columns), 3.8 MB as JSON: above the 1 MiB limit of this server
     x = np.linspace(-5.0, 30.0, n)
     with BandwiseClient(live_server.url, api_key=live_server.api_key, retry=RETRY) as client:
         with pytest.raises(PayloadTooLarge) as too_large:

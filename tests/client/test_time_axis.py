@@ -39,8 +39,8 @@ def test_conversions_match_datetime() -> None:
 def test_datetime64_in_and_out_equals_the_epoch_ms_request(app: InProcessApp) -> None:
     epoch_ms = (TIMES - np.datetime64("1970-01-01T00:00", "ms")).astype(np.int64).astype(float)
     with app.client(api_key=API_KEY) as client:
-        timed = client.smooth(TIMES, COUNTS, bandwidth=dt.timedelta(hours=4), curve={"points": 60}, predict_at=TIMES[[3, 50]] + np.timedelta64(20, "h"))
-        plain = client.smooth(epoch_ms, COUNTS, bandwidth=4 * 3_600_000.0, curve={"points": 60}, predict_at=epoch_ms[[3, 50]] + 20 * 3_600_000.0)
+        timed = client.smooth(TIMES, COUNTS, bandwidth=dt.timedelta(hours=4), curve={"points": 60}, predict_at=TIMES[[3, 40]] + np.timedelta64(20, "h"))
+        plain = client.smooth(epoch_ms, COUNTS, bandwidth=4 * 3_600_000.0, curve={"points": 60}, predict_at=epoch_ms[[3, 40]] + 20 * 3_600_000.0)
         as_text = client.smooth([str(t) + "Z" for t in TIMES], COUNTS.tolist(), bandwidth="PT4H", curve={"points": 60})
     curve = timed.curve.arrays()
     assert curve.x.dtype == np.dtype("datetime64[ms]")

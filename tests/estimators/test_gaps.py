@@ -67,3 +67,48 @@ def test_auto_rule_on_random_times_splits_rarely() -> None:
     assert share == pytest.approx(2.0**-10, rel=0.15)
     # with a bandwidth of 8 mean spacings the reach (24) decides: P(any of 4e5 spacings > 24) < 4e5 * exp(-24) = 2e-5
     assert find_gaps(xs, auto_max_gap(xs, math.inf, 8.0))[0].size == 0
+
+
+def _daily_cycle(hours: np.ndarray) -> np.ndarray:
+    return 10.0 + 3.0 * np.sin(2.0 * np.pi * hours / 24.0)
+
+
+def test_automatic_selection_is_not_dragged_by_a_hole() -> None:
+    # Hourly readings of a daily cycle with unit Gaussian noise (known truth, Monte Carlo); a 30-hour hole.
+    # Oracle: the best bandwidth on a fine grid for the readings around the hole, by squared error against the truth.
+    from estimators import fit
+
+    hours = np.arange(0.0, 24.0 * 14)
+    keep = (hours < 150.0) | (hours >= 180.0)
+    grid = np.geomspace(0.6, 12.0, 40)
+    ratios = []
+    for seed in range(6):
+        y = _daily_cycle(hours) + np.random.default_rng(seed).normal(0.0, 1.0, hours.size)
+        x_hole, y_hole = hours[keep], y[keep]
+        truth = _daily_cycle(x_hole)
+        chosen = fit(x_hole, y_hole, bandwidth="auto")
+        ase = [float(np.mean((fit(x_hole, y_hole, bandwidth=h).predict(x_hole) - truth) ** 2)) for h in grid]
+        ratios.append(float(np.mean((chosen.predict(x_hole) - truth) ** 2)) / min(ase))
+        # the same readings without the hole choose (nearly) the same bandwidth
+        assert fit(hours, y, bandwidth="auto").bandwidth == pytest.approx(chosen.bandwidth, rel=0.25)
+    assert float(np.median(ratios)) < 1.3  # our target for the median ratio to the oracle on independent noise (common practice: within 30 %)
+
+
+def test_fit_beside_a_hole_is_the_fit_at_an_end_of_the_data() -> None:
+    # A compact kernel whose reach is shorter than the hole: next to the hole, the readings across it get no weight,
+    # so estimate and standard error equal those of the segment fitted alone (definition of the window).
+    from estimators import fit
+
+    hours = np.arange(0.0, 24.0 * 10)
+    keep = (hours < 100.0) | (hours >= 130.0)
+    y = _daily_cycle(hours) + np.random.default_rng(4).normal(0.0, 1.0, hours.size)
+    x_hole, y_hole = hours[keep], y[keep]
+    before = hours < 100.0
+    whole = fit(x_hole, y_hole, kernel="epanechnikov", degree=1, bandwidth=6.0)
+    segment = fit(hours[before], y[before], kernel="epanechnikov", degree=1, bandwidth=6.0)
+    edge = np.array([92.0, 96.0, 99.0])
+    assert whole.predict(edge) == pytest.approx(segment.predict(edge), rel=1e-9, abs=1e-9)
+    # the noise scale is estimated from all readings, so compare the standard errors relative to it
+    assert whole.standard_error(edge) / whole.residual_scale == pytest.approx(
+        segment.standard_error(edge) / segment.residual_scale, rel=1e-6
+    )

@@ -97,6 +97,10 @@ CASES: list[tuple[str, str, str, dict[str, Any], int, str | None]] = [
     ("batch unknown field", "POST", "/v1/smooth/batch", {"json": {"series": [GOOD], "parallel": True}}, 422, "parallel"),
     ("batch item not an object", "POST", "/v1/smooth/batch", {"json": {"series": [[1, 2, 3]]}}, 422, "series[0]"),
     ("bandwidth endpoint with curve", "POST", "/v1/bandwidth", {"json": {"x": GOOD["x"], "y": GOOD["y"], "curve": {"points": 5}}}, 422, "curve"),
+    ("repeated field", "POST", "/v1/smooth", {"content": b'{"x":[1,2,3,4],"y":[1,2,3,4],"bandwidth":1.5,"bandwidth":"auto"}', "headers": JSON}, 422, "bandwidth"),
+    ("repeated nested field", "POST", "/v1/smooth", {"content": b'{"x":[1,2,3,4],"y":[1,2,3,4],"bandwidth":1.5,"bands":{"level":0.9,"level":0.5}}', "headers": JSON}, 422, "level"),
+    ("repeated field in a batch", "POST", "/v1/smooth/batch", {"content": b'{"series":[{"x":[1,2,3],"y":[1,2,3],"bandwidth":1,"y":[3,2,1]}]}', "headers": JSON}, 422, "y"),
+    ("repeated field on bandwidth", "POST", "/v1/bandwidth", {"content": b'{"x":[1,2,3,4],"x":[1,2,3,5],"y":[1,2,3,4]}', "headers": JSON}, 422, "x"),
     ("bandwidth endpoint malformed", "POST", "/v1/bandwidth", {"content": b"{", "headers": JSON}, 400, None),
 ]
 

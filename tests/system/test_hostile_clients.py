@@ -253,6 +253,15 @@ def heavy_body() -> bytes:
     ).encode()
 
 
+def long_body() -> bytes:
+    """A request that runs for tens of seconds: exact windows of about 10,000 readings at 10,000 points, 5,000 draws."""
+    n = 60_000
+    return json.dumps(
+        {"x": [i * 0.001 for i in range(n)], "y": [(i * 7919) % 101 * 0.01 for i in range(n)], "kernel": "epanechnikov", "bandwidth": 5.0,
+         "engine": "exact", "curve": {"points": 10_000}, "bands": {"method": "residual_bootstrap", "replicates": 5000}}
+    ).encode()
+
+
 def test_work_for_clients_that_left_is_stopped(plain: Server) -> None:
     """Three heavy requests dropped by their clients free the one worker at once; the log and metrics say 499."""
     def gone() -> int:
@@ -366,7 +375,7 @@ def test_drain_time_running_out_answers_in_flight_work_with_a_problem() -> None:
     server = start({"BANDWISE_DRAIN_SECONDS": "1"})
     try:
         result: dict[str, httpx.Response] = {}
-        thread = threading.Thread(target=lambda: result.setdefault("r", httpx.post(server.base + "/v1/smooth", content=heavy_body(), headers={"Content-Type": "application/json"}, timeout=60)))
+        thread = threading.Thread(target=lambda: result.setdefault("r", httpx.post(server.base + "/v1/smooth", content=long_body(), headers={"Content-Type": "application/json"}, timeout=60)))
         thread.start()
         time.sleep(2.0)
         server.process.send_signal(signal.SIGTERM)
