@@ -28,6 +28,8 @@ from service.runtime.settings import Settings
 log = logging.getLogger("bandwise.service")
 
 CACHEABLE = ("kernels", "demo_list", "demo")
+#: paths whose answer is JSON or Arrow depending on ``Accept``
+_ARROW_PATHS = frozenset({"/v1/smooth", "/v1/bandwidth"})
 
 
 class Service:
@@ -183,7 +185,13 @@ class Service:
         headers: dict[str, str] = {}
         if outcome.encoding:
             headers["Content-Encoding"] = outcome.encoding
+        # RFC 9110, section 12.5.5: name every request header the answer's form depended on, so caches keep them apart
+        vary = []
+        if request.method == "POST" and request.url.path in _ARROW_PATHS:
+            vary.append("Accept")
         if outcome.encoding or len(outcome.body) >= self.settings.gzip_min_bytes:
-            headers["Vary"] = "Accept-Encoding"
+            vary.append("Accept-Encoding")
+        if vary:
+            headers["Vary"] = ", ".join(vary)
         media = PROBLEM_MEDIA_TYPE if outcome.status >= 400 else outcome.media_type
         return Response(outcome.body, status_code=outcome.status, media_type=media, headers=headers)

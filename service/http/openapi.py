@@ -8,11 +8,20 @@ from fastapi import FastAPI
 from fastapi.openapi.utils import get_openapi
 from pydantic import BaseModel
 
+from service.contract.arrow_layout import ARROW_STREAM
 from service.contract.errors import PROBLEM_MEDIA_TYPE, PROBLEM_TYPES
 from service.contract.field_errors import FIELD_ERROR_CODES
 from service.contract.models import BandwidthRequest, BatchRequest, SmoothRequest
 from service.contract.warnings import WARNING_CODES
 from service.http.examples import load_examples
+
+#: paths that take an Arrow IPC stream and answer one on request (``Accept``)
+ARROW_PATHS = ("/v1/smooth", "/v1/bandwidth")
+_ARROW_REQUEST = (
+    "An Apache Arrow IPC stream: columns x, y and optionally weights (numbers; x may be an Arrow timestamp), the other "
+    "request fields as one JSON object in the schema metadata key bandwise.request. Same limits and answers as JSON."
+)
+_ARROW_ANSWER = "Sent when the request's Accept names this type: the answer's arrays as Arrow columns named by JSON path, the rest as JSON metadata (docs/api.md)."
 
 REQUEST_MODELS: dict[str, type[BaseModel]] = {
     "/v1/smooth": SmoothRequest,
@@ -42,6 +51,14 @@ def build_openapi(app: FastAPI) -> dict[str, Any]:
                 "required": True,
                 "content": {"application/json": {"schema": {"$ref": f"#/components/schemas/{model.__name__}"}}},
             }
+    for path in ARROW_PATHS:
+        operation = doc["paths"].get(path, {}).get("post")
+        if operation is None:
+            continue
+        binary = {"type": "string", "format": "binary", "contentMediaType": ARROW_STREAM}
+        operation["requestBody"]["content"][ARROW_STREAM] = {"schema": binary, "description": _ARROW_REQUEST}
+        ok = operation.setdefault("responses", {}).setdefault("200", {"description": "Successful Response"})
+        ok.setdefault("content", {})[ARROW_STREAM] = {"schema": binary, "description": _ARROW_ANSWER}
     for methods in doc["paths"].values():
         for operation in methods.values():
             for status, response in operation.get("responses", {}).items():

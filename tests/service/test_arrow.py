@@ -110,6 +110,10 @@ def test_json_body_can_ask_for_an_arrow_answer(api: Harness) -> None:
     same_numbers(reference["bandwidth"]["candidates"], arrays["bandwidth.candidates"])
     same_numbers(reference["bandwidth"]["scores"], arrays["bandwidth.scores"])
     assert meta["warnings"] == reference["warnings"]
+    # the form of the answer depends on Accept, so both answers say so to caches (RFC 9110, section 12.5.5)
+    for response in (answer, api.post("/v1/bandwidth", json=request)):
+        assert "accept" in [v.strip().lower() for v in response.headers.get("vary", "").split(",")]
+    assert "accept" not in api.get("/v1/kernels").headers.get("vary", "").lower().split(", ")
 
 
 def test_bandwidth_with_weights_and_narrow_types(api: Harness) -> None:
