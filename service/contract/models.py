@@ -60,13 +60,18 @@ def _bandwidth(value: Any) -> float | str:
         if value == "auto" or _looks_like_duration(value):
             return value
         raise FieldProblem("not_allowed", BANDWIDTH_MESSAGE + " (with timestamps, also an ISO 8601 duration such as PT3H)")
+    return _positive_number(value, BANDWIDTH_MESSAGE)
+
+
+def _positive_number(value: Any, message: str) -> float:
+    """A JSON number (not a boolean) that is finite and above 0, else a field problem with ``message``."""
     if isinstance(value, bool) or not isinstance(value, (int, float)):
-        raise FieldProblem("wrong_type", BANDWIDTH_MESSAGE)
+        raise FieldProblem("wrong_type", message)
     number = float(value)
     if not math.isfinite(number):
-        raise FieldProblem("not_finite", BANDWIDTH_MESSAGE)
+        raise FieldProblem("not_finite", message)
     if number <= 0:
-        raise FieldProblem("too_small", BANDWIDTH_MESSAGE)
+        raise FieldProblem("too_small", message)
     return number
 
 
@@ -85,14 +90,7 @@ def _length(value: Any) -> float | str:
         if _looks_like_duration(value):
             return value
         raise FieldProblem("bad_duration", DURATION_MESSAGE)
-    if isinstance(value, bool) or not isinstance(value, (int, float)):
-        raise FieldProblem("wrong_type", DURATION_MESSAGE)
-    number = float(value)
-    if not math.isfinite(number):
-        raise FieldProblem("not_finite", DURATION_MESSAGE)
-    if number <= 0:
-        raise FieldProblem("too_small", DURATION_MESSAGE)
-    return number
+    return _positive_number(value, DURATION_MESSAGE)
 
 
 Length = Annotated[

@@ -10,7 +10,7 @@ from starlette.requests import Request
 
 from service.contract.arrow_layout import ARROW_KINDS, ARROW_STREAM, is_arrow
 from service.contract.errors import ProblemError
-from service.http.limits import check_json_content_type
+from service.http.limits import check_json_content_type, check_uncompressed
 
 
 def body_media_type(request: Request, kind: str) -> str:
@@ -27,11 +27,5 @@ def body_media_type(request: Request, kind: str) -> str:
         return "application/json"
     if kind not in ARROW_KINDS:
         raise ProblemError("unsupported-media-type", "Arrow bodies are taken by POST /v1/smooth and /v1/bandwidth only; send this request as JSON.")
-    encoding = request.headers.get("content-encoding", "identity").strip().lower()
-    if encoding not in ("", "identity"):
-        raise ProblemError(
-            "unsupported-media-type",
-            f"Content-Encoding {encoding!r} is not supported for request bodies; send them uncompressed.",
-            headers={"Accept-Encoding": "identity"},
-        )
+    check_uncompressed(request)
     return ARROW_STREAM

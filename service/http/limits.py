@@ -1,4 +1,4 @@
-"""Checks made before a body reaches a worker: media type, size, client rate."""
+"""Checks made before a body reaches a worker: media type and coding, client rate (sizes: service.http.budget)."""
 
 from __future__ import annotations
 
@@ -29,6 +29,11 @@ def check_json_content_type(request: Request) -> None:
         key, _, value = param.partition("=")
         if key.strip().lower() == "charset" and value.strip().strip('"').lower() not in ("utf-8", "utf8"):
             raise ProblemError("unsupported-media-type", "JSON bodies must be UTF-8.")
+    check_uncompressed(request)
+
+
+def check_uncompressed(request: Request) -> None:
+    """Refuse a compressed request body (415): bodies are read as sent."""
     encoding = request.headers.get("content-encoding", "identity").strip().lower()
     if encoding not in ("", "identity"):
         # RFC 9110, 15.5.16: name the content codings that would have been accepted (only none)
@@ -37,31 +42,6 @@ def check_json_content_type(request: Request) -> None:
             f"Content-Encoding {encoding!r} is not supported for request bodies; send them uncompressed.",
             headers={"Accept-Encoding": "identity"},
         )
-
-
-async def read_body(request: Request, limit: int) -> bytes:
-    """Read the body, refusing it (413) as soon as it exceeds ``limit`` bytes.
-
-    A declared ``Content-Length`` above the limit is refused before reading
-    anything; otherwise the count is checked chunk by chunk while reading,
-    so an oversized body is never held in memory whole.
-    """
-    declared = request.headers.get("content-length")
-    if declared is not None:
-        try:
-            length = int(declared)
-        except ValueError:
-            raise ProblemError("malformed-request", "Content-Length is not a number.") from None
-        if length > limit:
-            raise ProblemError("payload-too-large", f"The body declares {length} bytes; the limit is {limit} bytes.")
-    chunks: list[bytes] = []
-    total = 0
-    async for chunk in request.stream():
-        total += len(chunk)
-        if total > limit:
-            raise ProblemError("payload-too-large", f"The body is larger than the limit of {limit} bytes.")
-        chunks.append(chunk)
-    return b"".join(chunks)
 
 
 class RateLimiter:
