@@ -47,7 +47,7 @@ import logging
 import random
 import time
 import uuid
-from collections.abc import Iterable, Mapping, Sequence
+from collections.abc import AsyncIterator, Iterable, Iterator, Mapping, Sequence
 from dataclasses import dataclass
 from typing import Any, TypeVar
 
@@ -90,6 +90,7 @@ from service.client.results import (
     to_numpy,
 )
 from service.client.retry import RetryPolicy, parse_retry_after
+from service.client.stream import NDJSON_ACCEPT, SlotAnswer, read_line
 from service.client.time_values import is_time_axis, time_options, to_rfc3339
 from service.contract.arrow_layout import ARROW_STREAM
 from service.contract.errors import REASON_PHRASES
@@ -118,6 +119,7 @@ __all__ = [
     "PredictionArrays",
     "RetryPolicy",
     "ServerError",
+    "SlotAnswer",
     "SmoothResult",
     "Timeout",
     "Unauthorized",
@@ -677,6 +679,44 @@ class BandwiseClient(_ClientBase):
         """The kernels and their constants (``GET /v1/kernels``)."""
         return self._send(self._prepare_kernels())  # type: ignore[no-any-return]
 
+    def stream_batch(self, series: Iterable[Mapping[str, Any]]) -> Iterator[SlotAnswer]:
+        """Smooth many series in one call, getting each series' answer as soon as the service has it.
+
+        ``POST /v1/smooth/batch`` with ``Accept: application/x-ndjson``. The series are checked and
+        sent as by :meth:`smooth_batch`; the call is retried like any other until the first line
+        arrives, never after.
+
+        Yields
+        ------
+        SlotAnswer
+            One per series, in the order the service finishes them; ``index`` is the series'
+            position in ``series``, ``result`` or ``error`` its answer.
+        """
+        prepared = self._prepare_batch(series)
+        call = self._call(prepared)
+        headers = {**self._request_headers(call, prepared), "Accept": NDJSON_ACCEPT}
+        started = False
+        while True:
+            call.begin()
+            try:
+                with self._http.stream("POST", prepared.path.lstrip("/"), content=prepared.body, headers=headers) as response:
+                    if response.status_code == 200:
+                        request_id = response.headers.get("x-request-id")
+                        for line in response.iter_lines():
+                            if line:
+                                started = True
+                                yield read_line(line, request_id)
+                        return
+                    response.read()
+                    delay = call.after_response(response)
+                    if delay is None:
+                        raise _error_from_response(response, call)
+            except httpx.TransportError as exc:
+                if started:  # lines already given: sending again would repeat them
+                    raise call.transport_error(exc) from exc
+                delay = call.after_error(exc)
+            time.sleep(delay)
+
 
 class AsyncBandwiseClient(_ClientBase):
     """asyncio Bandwise client: the methods of :class:`BandwiseClient`, as coroutines.
@@ -740,5 +780,32 @@ class AsyncBandwiseClient(_ClientBase):
     async def kernels(self) -> KernelsResult:
         """Kernels and constants; see :meth:`BandwiseClient.kernels`."""
         return await self._send(self._prepare_kernels())  # type: ignore[no-any-return]
+
+    async def stream_batch(self, series: Iterable[Mapping[str, Any]]) -> AsyncIterator[SlotAnswer]:
+        """Each series' answer as soon as the service has it; see :meth:`BandwiseClient.stream_batch`."""
+        prepared = self._prepare_batch(series)
+        call = self._call(prepared)
+        headers = {**self._request_headers(call, prepared), "Accept": NDJSON_ACCEPT}
+        started = False
+        while True:
+            call.begin()
+            try:
+                async with self._http.stream("POST", prepared.path.lstrip("/"), content=prepared.body, headers=headers) as response:
+                    if response.status_code == 200:
+                        request_id = response.headers.get("x-request-id")
+                        async for line in response.aiter_lines():
+                            if line:
+                                started = True
+                                yield read_line(line, request_id)
+                        return
+                    await response.aread()
+                    delay = call.after_response(response)
+                    if delay is None:
+                        raise _error_from_response(response, call)
+            except httpx.TransportError as exc:
+                if started:  # lines already given: sending again would repeat them
+                    raise call.transport_error(exc) from exc
+                delay = call.after_error(exc)
+            await asyncio.sleep(delay)
 
 
