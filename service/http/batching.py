@@ -128,8 +128,11 @@ class BatchRunner:
         self.gzip_min_bytes = gzip_min_bytes
         self.gzip_level = gzip_level
 
-    async def plan(self, job: Job, deadline_seconds: float) -> BatchPlan:
+    async def plan(self, job: Job, deadline_seconds: float, groups_per_worker: int = GROUPS_PER_WORKER) -> BatchPlan:
         """Decide how ``job`` runs: whole in one worker, or cut into groups (a ``batch_plan`` job finds the slots).
+
+        ``groups_per_worker`` bounds the number of groups (a streamed answer asks for more, smaller
+        groups, so its first lines come sooner).
 
         Raises the pool's errors (overloaded, deadline, shutting down) for the whole batch.
         """
@@ -145,7 +148,7 @@ class BatchRunner:
         if spans:
             starts, stops = spans[0::2], spans[1::2]
             sizes = [b - a for a, b in zip(starts, stops, strict=True)]
-            groups = min(self.pool.size * GROUPS_PER_WORKER, sum(sizes) // GROUP_MIN_BYTES, len(sizes))
+            groups = min(self.pool.size * groups_per_worker, sum(sizes) // GROUP_MIN_BYTES, len(sizes))
             if groups >= 2:
                 bounds = group_bounds(sizes, groups)
         if len(bounds) < 3:

@@ -5,8 +5,9 @@ newline-delimited JSON (one JSON text per line, each ended by ``\\n``, as in
 the NDJSON specification). Each line is one slot, ``{"index": i, ...}`` with
 either the fields of a smooth answer or ``"problem"`` (RFC 9457), in the
 order the slots finish. A batch is planned and run as in
-:mod:`service.http.batching`; the lines of a group are sent when the group
-finishes (a batch that runs whole sends all its lines at once).
+:mod:`service.http.batching`, in up to :data:`STREAM_GROUPS_PER_WORKER`
+groups per worker; the lines of a group are sent when the group finishes (a
+batch that runs whole sends all its lines at once).
 
 What concerns the whole batch (a body that is not JSON, too many series, an
 overloaded replica) is still answered with the usual status and problem
@@ -36,6 +37,8 @@ from service.http.budget import Reservation
 __all__ = ["NDJSON_MEDIA_TYPE", "accepts_ndjson", "ndjson_response", "open_batch_stream"]
 
 NDJSON_MEDIA_TYPE = "application/x-ndjson"
+#: groups per worker of a streamed batch: smaller groups than for one JSON answer, so lines start sooner
+STREAM_GROUPS_PER_WORKER = 16
 
 
 def accepts_ndjson(header: str | None) -> bool:
@@ -94,7 +97,7 @@ async def open_batch_stream(runner: BatchRunner, job: Job, deadline_seconds: flo
     Raises the pool's errors (overloaded, deadline, shutting down) while planning, as for any request.
     """
     job = replace(job, accept_gzip=False)
-    plan = await runner.plan(job, deadline_seconds)
+    plan = await runner.plan(job, deadline_seconds, STREAM_GROUPS_PER_WORKER)
     if not plan.split:
         outcome = await runner.run_whole(job, plan)
         if outcome.status != 200:
