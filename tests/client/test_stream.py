@@ -8,6 +8,7 @@ on loopback for the stream as it travels over HTTP/1.1 chunked transfer
 from __future__ import annotations
 
 import asyncio
+import time
 from collections.abc import Iterator
 from pathlib import Path
 from typing import Any
@@ -129,3 +130,28 @@ def test_async_stream_over_http_gives_each_series_once(two_workers: str) -> None
 
     answers = check_one_per_series(asyncio.run(main()), len(series))
     assert [i for i, a in answers.items() if not a.ok] == [2]
+
+
+def _metric(url: str, prefix: str) -> float:
+    text = httpx.get(f"{url}/metrics", timeout=10.0).text
+    return float(next(line for line in text.splitlines() if line.startswith(prefix)).split()[-1])
+
+
+@pytest.mark.system
+def test_a_reader_that_leaves_stops_the_groups_still_computing(two_workers: str) -> None:
+    cancelled = 'bandwise_worker_restarts_total{reason="cancelled"}'
+    before = _metric(two_workers, cancelled)
+    with httpx.stream("POST", f"{two_workers}/v1/smooth/batch", json={"series": heavy_fleet(24)}, headers={"accept": "application/x-ndjson"}, timeout=120.0) as response:
+        assert response.status_code == 200
+        first = next(line for line in response.iter_lines() if line)
+        assert "index" in first
+    # the connection is closed: the groups still computing are stopped, their workers replaced
+    for _ in range(200):  # at most about 20 s
+        if _metric(two_workers, cancelled) > before:
+            break
+        time.sleep(0.1)
+    assert _metric(two_workers, cancelled) > before
+    for _ in range(600):  # the replaced workers start again, for the tests after this one (at most about 60 s)
+        if _metric(two_workers, "bandwise_workers_ready") == 2:
+            break
+        time.sleep(0.1)
