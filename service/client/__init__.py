@@ -47,7 +47,7 @@ import logging
 import random
 import time
 import uuid
-from collections.abc import Iterable, Mapping, Sequence
+from collections.abc import AsyncIterator, Iterable, Iterator, Mapping, Sequence
 from dataclasses import dataclass
 from typing import Any, TypeVar
 
@@ -73,6 +73,7 @@ from service.client.errors import (
     error_from_problem,
     type_title,
 )
+from service.client.fan_out import BatchLimits, FanOut, default_batch_series, run_tasks, run_threads
 from service.client.results import (
     _CAN_IGNORE_EXTRA,
     BandwidthResult,
@@ -90,6 +91,7 @@ from service.client.results import (
     to_numpy,
 )
 from service.client.retry import RetryPolicy, parse_retry_after
+from service.client.stream import NDJSON_ACCEPT, SlotAnswer, read_line
 from service.client.time_values import is_time_axis, time_options, to_rfc3339
 from service.contract.arrow_layout import ARROW_STREAM
 from service.contract.errors import REASON_PHRASES
@@ -101,6 +103,7 @@ __all__ = [
     "BandwiseClient",
     "BandwiseError",
     "BandwidthResult",
+    "BatchLimits",
     "BatchResult",
     "ConnectionFailed",
     "CurveArrays",
@@ -118,6 +121,7 @@ __all__ = [
     "PredictionArrays",
     "RetryPolicy",
     "ServerError",
+    "SlotAnswer",
     "SmoothResult",
     "Timeout",
     "Unauthorized",
@@ -520,6 +524,10 @@ class _ClientBase:
         return _Prepared("POST", "/v1/bandwidth", payload, BandwidthResult, content_type)
 
     def _prepare_batch(self, series: Iterable[Mapping[str, Any]]) -> _Prepared:
+        return _Prepared("POST", "/v1/smooth/batch", _dumps({"series": self._series_bodies(series)}), BatchResult)
+
+    def _series_bodies(self, series: Iterable[Mapping[str, Any]]) -> list[dict[str, Any]]:
+        """The checked JSON body of every series of a batch; raises :class:`ValidationFailed` naming each bad one."""
         if isinstance(series, Mapping) or isinstance(series, (str, bytes)):
             raise TypeError("series must be a list of mappings, each with x, y and the options of smooth()")
         errors: list[dict[str, str]] = []
@@ -539,7 +547,15 @@ class _ClientBase:
             errors.append({"field": "series", "message": "at least one series is needed", "type": "too_short"})
         if errors:
             raise _refuse(errors, "batch request")
-        return _Prepared("POST", "/v1/smooth/batch", _dumps({"series": bodies}), BatchResult)
+        return bodies
+
+    def _fan_out(self, series: Iterable[Mapping[str, Any]], connections: int, batch_series: int | None, limits: BatchLimits | None) -> FanOut:
+        if connections < 1:
+            raise ValueError("connections must be >= 1")
+        bodies = self._series_bodies(series)
+        limits = limits if limits is not None else BatchLimits()
+        size = batch_series if batch_series is not None else default_batch_series(len(bodies), connections, limits)
+        return FanOut([_dumps(b) for b in bodies], [len(b["x"]) for b in bodies], limits, size, self.retry, self._rng)
 
     @staticmethod
     def _prepare_kernels() -> _Prepared:
@@ -677,6 +693,73 @@ class BandwiseClient(_ClientBase):
         """The kernels and their constants (``GET /v1/kernels``)."""
         return self._send(self._prepare_kernels())  # type: ignore[no-any-return]
 
+    def smooth_many(self, series: Iterable[Mapping[str, Any]], *, connections: int = 4, batch_series: int | None = None, limits: BatchLimits | None = None) -> Iterator[SlotAnswer]:
+        """Smooth any number of series: batches within the service's limits, sent over several connections.
+
+        Behind a gateway the batches spread over its replicas. A series that fails for a reason
+        sending it again may cure (deadline, overload, shutdown, a lost connection) is sent again
+        in a later batch, after the backoff of the client's :class:`RetryPolicy`, at most
+        ``retry.attempts`` times; a batch refused as too large is halved.
+
+        Parameters
+        ----------
+        series : iterable of mapping
+            Each ``{"x": ..., "y": ..., **options}`` with the options of :meth:`smooth`; all are
+            checked before anything is sent (:class:`ValidationFailed` names each bad one).
+        connections : int, default 4
+            Batches in flight at once.
+        batch_series : int, optional
+            Most series per batch; by default about two batches per connection, within ``limits``.
+        limits : BatchLimits, optional
+            The service's batch limits, if it is configured otherwise than by default.
+
+        Yields
+        ------
+        SlotAnswer
+            Exactly one per series, in the order they are answered (not the order given):
+            ``index`` is the series' position in ``series``, ``result`` its fit or ``error`` why not.
+        """
+        plan = self._fan_out(series, connections, batch_series, limits)
+        return run_threads(plan, lambda body: self._send(_Prepared("POST", "/v1/smooth/batch", body, BatchResult)), connections)
+
+    def stream_batch(self, series: Iterable[Mapping[str, Any]]) -> Iterator[SlotAnswer]:
+        """Smooth many series in one call, getting each series' answer as soon as the service has it.
+
+        ``POST /v1/smooth/batch`` with ``Accept: application/x-ndjson``. The series are checked and
+        sent as by :meth:`smooth_batch`; the call is retried like any other until the first line
+        arrives, never after.
+
+        Yields
+        ------
+        SlotAnswer
+            One per series, in the order the service finishes them; ``index`` is the series'
+            position in ``series``, ``result`` or ``error`` its answer.
+        """
+        prepared = self._prepare_batch(series)
+        call = self._call(prepared)
+        headers = {**self._request_headers(call, prepared), "Accept": NDJSON_ACCEPT}
+        started = False
+        while True:
+            call.begin()
+            try:
+                with self._http.stream("POST", prepared.path.lstrip("/"), content=prepared.body, headers=headers) as response:
+                    if response.status_code == 200:
+                        request_id = response.headers.get("x-request-id")
+                        for line in response.iter_lines():
+                            if line:
+                                started = True
+                                yield read_line(line, request_id)
+                        return
+                    response.read()
+                    delay = call.after_response(response)
+                    if delay is None:
+                        raise _error_from_response(response, call)
+            except httpx.TransportError as exc:
+                if started:  # lines already given: sending again would repeat them
+                    raise call.transport_error(exc) from exc
+                delay = call.after_error(exc)
+            time.sleep(delay)
+
 
 class AsyncBandwiseClient(_ClientBase):
     """asyncio Bandwise client: the methods of :class:`BandwiseClient`, as coroutines.
@@ -740,5 +823,41 @@ class AsyncBandwiseClient(_ClientBase):
     async def kernels(self) -> KernelsResult:
         """Kernels and constants; see :meth:`BandwiseClient.kernels`."""
         return await self._send(self._prepare_kernels())  # type: ignore[no-any-return]
+
+    def smooth_many(self, series: Iterable[Mapping[str, Any]], *, connections: int = 4, batch_series: int | None = None, limits: BatchLimits | None = None) -> AsyncIterator[SlotAnswer]:
+        """Any number of series over several connections; ``async for`` over it. See :meth:`BandwiseClient.smooth_many`."""
+        plan = self._fan_out(series, connections, batch_series, limits)
+
+        async def send(body: bytes) -> BatchResult:
+            return await self._send(_Prepared("POST", "/v1/smooth/batch", body, BatchResult))  # type: ignore[no-any-return]
+
+        return run_tasks(plan, send, connections)
+
+    async def stream_batch(self, series: Iterable[Mapping[str, Any]]) -> AsyncIterator[SlotAnswer]:
+        """Each series' answer as soon as the service has it; see :meth:`BandwiseClient.stream_batch`."""
+        prepared = self._prepare_batch(series)
+        call = self._call(prepared)
+        headers = {**self._request_headers(call, prepared), "Accept": NDJSON_ACCEPT}
+        started = False
+        while True:
+            call.begin()
+            try:
+                async with self._http.stream("POST", prepared.path.lstrip("/"), content=prepared.body, headers=headers) as response:
+                    if response.status_code == 200:
+                        request_id = response.headers.get("x-request-id")
+                        async for line in response.aiter_lines():
+                            if line:
+                                started = True
+                                yield read_line(line, request_id)
+                        return
+                    await response.aread()
+                    delay = call.after_response(response)
+                    if delay is None:
+                        raise _error_from_response(response, call)
+            except httpx.TransportError as exc:
+                if started:  # lines already given: sending again would repeat them
+                    raise call.transport_error(exc) from exc
+                delay = call.after_error(exc)
+            await asyncio.sleep(delay)
 
 

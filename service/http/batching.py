@@ -23,7 +23,7 @@ from __future__ import annotations
 import asyncio
 import gzip
 import time
-from dataclasses import replace
+from dataclasses import dataclass, replace
 
 import orjson
 
@@ -72,6 +72,40 @@ def group_bounds(sizes: list[int], groups: int) -> list[int]:
     return bounds
 
 
+@dataclass(frozen=True)
+class BatchPlan:
+    """How one batch runs.
+
+    Attributes
+    ----------
+    spans : list of int
+        Start and stop byte of every series, flattened; empty when the batch runs whole.
+    bounds : list of int
+        First slot of every group, then the number of slots; empty when the batch runs whole.
+    soft, hard_end : float
+        ``time.monotonic()`` instants: when workers stop starting slots, and when groups are stopped.
+    """
+
+    spans: list[int]
+    bounds: list[int]
+    soft: float
+    hard_end: float
+
+    @property
+    def split(self) -> bool:
+        """True when the batch runs as several groups."""
+        return len(self.bounds) >= 3
+
+    @property
+    def groups(self) -> int:
+        """Number of groups (0 when the batch runs whole)."""
+        return max(len(self.bounds) - 1, 0)
+
+    def slots(self, k: int) -> range:
+        """Slot indices of group ``k``."""
+        return range(self.bounds[k], self.bounds[k + 1])
+
+
 class BatchRunner:
     """Runs batch jobs on a pool, split over its workers when the batch is large.
 
@@ -94,44 +128,50 @@ class BatchRunner:
         self.gzip_min_bytes = gzip_min_bytes
         self.gzip_level = gzip_level
 
-    async def run(self, job: Job, deadline_seconds: float) -> Outcome:
-        """Answer a batch job; raises the pool's errors only for what concerns the whole batch."""
+    async def plan(self, job: Job, deadline_seconds: float, groups_per_worker: int = GROUPS_PER_WORKER) -> BatchPlan:
+        """Decide how ``job`` runs: whole in one worker, or cut into groups (a ``batch_plan`` job finds the slots).
+
+        ``groups_per_worker`` bounds the number of groups (a streamed answer asks for more, smaller
+        groups, so its first lines come sooner).
+
+        Raises the pool's errors (overloaded, deadline, shutting down) for the whole batch.
+        """
         started = time.monotonic()
         hard_end = started + deadline_seconds
         soft = soft_deadline(started, deadline_seconds)
-        whole = replace(job, params={**job.params, "soft_deadline": soft})
-        spans: list[int] | None = None
+        spans: list[int] = []
         if len(job.body) >= SPLIT_MIN_BYTES and self.pool.size > 1:
             plan = await self.pool.run(Job("batch_plan", job.body, job.request_id, job.path), deadline_seconds)
             if plan.status == 200:
-                spans = orjson.loads(plan.body).get("spans")
+                spans = orjson.loads(plan.body).get("spans") or []
         bounds: list[int] = []
         if spans:
             starts, stops = spans[0::2], spans[1::2]
             sizes = [b - a for a, b in zip(starts, stops, strict=True)]
-            groups = min(self.pool.size * GROUPS_PER_WORKER, sum(sizes) // GROUP_MIN_BYTES, len(sizes))
+            groups = min(self.pool.size * groups_per_worker, sum(sizes) // GROUP_MIN_BYTES, len(sizes))
             if groups >= 2:
                 bounds = group_bounds(sizes, groups)
         if len(bounds) < 3:
-            outcome = await self.pool.run(whole, max(hard_end - time.monotonic(), 0.0))
-            self._count("deadline-exceeded", outcome.unfinished)
-            return outcome
-        assert spans is not None
+            return BatchPlan([], [], soft, hard_end)
+        return BatchPlan(spans, bounds, soft, hard_end)
+
+    async def run_whole(self, job: Job, plan: BatchPlan) -> Outcome:
+        """Run the batch as one job in one worker (raises the pool's errors)."""
+        whole = replace(job, params={**job.params, "soft_deadline": plan.soft})
+        outcome = await self.pool.run(whole, max(plan.hard_end - time.monotonic(), 0.0))
+        self._count("deadline-exceeded", outcome.unfinished)
+        return outcome
+
+    async def run(self, job: Job, deadline_seconds: float) -> Outcome:
+        """Answer a batch job; raises the pool's errors only for what concerns the whole batch."""
+        plan = await self.plan(job, deadline_seconds)
+        if not plan.split:
+            return await self.run_whole(job, plan)
         gate = asyncio.Semaphore(self.pool.size)
-        parts = [
-            self._group(job, gate, first, bounds[k + 1], spans[2 * first], spans[2 * bounds[k + 1] - 1], soft, hard_end)
-            for k, first in enumerate(bounds[:-1])
-        ]
-        answers = await asyncio.gather(*parts)
+        answers = await asyncio.gather(*(self.run_group(job, gate, plan, k) for k in range(plan.groups)))
         listed = sum(a.listed for _, a in answers)
         if listed > self.max_batch_points:
-            body = problem_bytes(
-                "validation-error",
-                "Too many points in one batch.",
-                instance=job.path,
-                request_id=job.request_id,
-                errors=[{"field": "series", "message": f"at most {self.max_batch_points} points over all series are allowed (BANDWISE_MAX_BATCH_POINTS), got {listed}; split the batch", "type": "too_long"}],
-            )
+            body = problem_bytes("validation-error", "Too many points in one batch.", instance=job.path, request_id=job.request_id, errors=[self.points_error(listed)])
             return Outcome(422, body, PROBLEM_MEDIA_TYPE, None, 0, "validation-error")
         payload = b'{"results":[' + b",".join(inner for inner, _ in answers) + b"]}"
         encoding = None
@@ -142,13 +182,22 @@ class BatchRunner:
         seconds = sum(a.seconds for _, a in answers)
         return Outcome(200, payload, "application/json", encoding, points, None, seconds, unfinished=sum(a.unfinished for _, a in answers), listed=listed)
 
-    async def _group(self, job: Job, gate: asyncio.Semaphore, first: int, stop: int, begin: int, end: int, soft: float, hard_end: float) -> tuple[bytes, Outcome]:
-        """Run slots ``first:stop`` (bytes ``begin:end`` of the body); the inner bytes of its JSON array and its outcome."""
+    def points_error(self, listed: int) -> dict[str, str]:
+        """The ``errors`` entry of a batch over the point limit."""
+        return {"field": "series", "message": f"at most {self.max_batch_points} points over all series are allowed (BANDWISE_MAX_BATCH_POINTS), got {listed}; split the batch", "type": "too_long"}
+
+    async def run_group(self, job: Job, gate: asyncio.Semaphore, plan: BatchPlan, k: int) -> tuple[bytes, Outcome]:
+        """Run group ``k`` of ``plan`` once ``gate`` lets it; the inner bytes of its JSON array of slots and its outcome.
+
+        Never raises the pool's errors: a group that gives no answer has each of its slots marked with the problem.
+        """
+        first, stop = plan.bounds[k], plan.bounds[k + 1]
+        begin, end = plan.spans[2 * first], plan.spans[2 * stop - 1]
         async with gate:
-            remaining = hard_end - time.monotonic()
+            remaining = plan.hard_end - time.monotonic()
             if remaining <= 0:
                 return self._lost(job, "deadline-exceeded", first, stop)
-            part = Job("batch", b'{"series":[' + job.body[begin:end] + b"]}", job.request_id, job.path, {"offset": first, "part": True, "soft_deadline": soft})
+            part = Job("batch", b'{"series":[' + job.body[begin:end] + b"]}", job.request_id, job.path, {"offset": first, "part": True, "soft_deadline": plan.soft})
             try:
                 outcome = await self.pool.run(part, remaining, admitted=True)
             except DeadlineExceeded:

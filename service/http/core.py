@@ -20,6 +20,7 @@ from service.http.disconnect import DisconnectWatch
 from service.http.identity import Admission
 from service.http.limits import RateLimiter, retry_after
 from service.http.metrics import Metrics
+from service.http.ndjson import accepts_ndjson, ndjson_response, open_batch_stream
 from service.http.negotiation import accepts_gzip
 from service.http.observability import ServiceCounters, request_id_of
 from service.http.pool import DeadlineExceeded, Overloaded, PoolClosed, WorkerLost, WorkerPool
@@ -133,9 +134,15 @@ class Service:
         accept_gzip = cache_key is None and accepts_gzip(request.headers.get("accept-encoding", ""))
         accept_arrow = kind in ARROW_KINDS and accepts_arrow(request.headers.get("accept"))
         job = Job(kind, body, request_id_of(request.scope), request.scope["path"], dict(params or {}), accept_gzip, content_type, accept_arrow)
+        stream = kind == "batch" and accepts_ndjson(request.headers.get("accept"))
         try:
             async with DisconnectWatch(request.receive):
-                if kind == "batch":
+                if stream:
+                    opened = await open_batch_stream(self.batches, job, self.settings.deadline_seconds)
+                    if not isinstance(opened, Outcome):
+                        return ndjson_response(opened, reservation)
+                    outcome = opened
+                elif kind == "batch":
                     outcome = await self.batches.run(job, self.settings.deadline_seconds)
                 else:
                     outcome = await self.pool.run(job, self.settings.deadline_seconds)

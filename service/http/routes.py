@@ -23,6 +23,7 @@ from service.contract.models import (
 from service.http.core import Service
 from service.http.docs_text import BANDWIDTH_DESCRIPTION, BATCH_DESCRIPTION, SMOOTH_DESCRIPTION
 from service.http.limits import retry_after
+from service.http.ndjson import NDJSON_MEDIA_TYPE
 from service.http.static_files import docs_html, index_file
 
 
@@ -41,6 +42,16 @@ def _problems(*statuses: int) -> dict[int | str, dict[str, Any]]:
     return {s: {"model": Problem, "description": text[s]} for s in statuses}
 
 
+#: one line of the streamed batch answer (application/x-ndjson): the series' index and its slot
+BATCH_LINE_SCHEMA: dict[str, Any] = {
+    "title": "BatchLine",
+    "type": "object",
+    "description": "One line of the streamed batch answer: `index` (the series' position in the request) with the fields of a smooth answer, or with `problem` (RFC 9457) when that series failed.",
+    "required": ["index"],
+    "properties": {"index": {"type": "integer", "minimum": 0}, "problem": {"$ref": "#/components/schemas/Problem"}},
+    "additionalProperties": True,
+}
+
 POST_PROBLEMS = _problems(400, 401, 408, 413, 415, 422, 429, 503)
 GET_PROBLEMS = _problems(401, 429, 503)
 
@@ -57,7 +68,7 @@ def api_router(service: Service) -> APIRouter:
     async def smooth(request: Request) -> Response:
         return await service.handle(request, "smooth")
 
-    @router.post("/smooth/batch", summary="Smooth many series", description=BATCH_DESCRIPTION, response_model=None, responses={200: {"model": BatchResponse, "description": "One slot per series."}, **POST_PROBLEMS}, tags=["smoothing"])
+    @router.post("/smooth/batch", summary="Smooth many series", description=BATCH_DESCRIPTION, response_model=None, responses={200: {"model": BatchResponse, "description": "One slot per series; with `Accept: application/x-ndjson`, one line per series as it finishes.", "content": {NDJSON_MEDIA_TYPE: {"schema": BATCH_LINE_SCHEMA}}}, **POST_PROBLEMS}, tags=["smoothing"])
     async def smooth_batch(request: Request) -> Response:
         return await service.handle(request, "batch")
 

@@ -68,7 +68,7 @@ class Settings(BaseSettings):
     worker_nice: int = Field(5, ge=0, le=19, description="Niceness added to worker processes, which also run as batch (throughput) tasks on Linux, so the HTTP process answers first when the CPU is short; 0 keeps the default scheduling.")
 
     # Request limits
-    max_body_bytes: int = Field(64 * MIB, ge=1024, description="Largest request body in bytes (413 beyond, checked while reading).")
+    max_body_bytes: int = Field(128 * MIB, ge=1024, description="Largest request body in bytes (413 beyond, checked while reading). The default holds the largest batch (BANDWISE_MAX_BATCH_POINTS points) as JSON with every number written at full precision.")
     body_bytes_in_flight: int = Field(256 * MIB, ge=1024, description="Most bytes of request bodies the HTTP process receives and holds at once, over all requests (at least BANDWISE_MAX_BODY_BYTES); beyond it: 503 with Retry-After before the body is read.")
     request_memory_bytes: int = Field(1024 * MIB, ge=64 * MIB, description="Memory one request may take in its worker above the worker's resting size, modelled from the request's size before work starts (docs/reliability.md); beyond it: 422.")
     max_points: int = Field(2_000_000, ge=2, description="Most data points in one series.")

@@ -42,6 +42,7 @@ MODULES: list[tuple[str, list[str], list[str]]] = [
     ("bench_wire", [], ["--n", "1e5", "--repeat", "3"]),
     ("bench_predict_order", [], ["--n", "1e5"]),
     ("bench_batch", [], ["--series", "60", "--rounds", "1"]),
+    ("bench_stream", [], ["--series", "30", "--rounds", "1"]),
     ("bench_time_axis", [], ["--n", "1e5", "--rounds", "2"]),
     ("study_selection", [], ["--replications", "5"]),
     ("study_coverage", [], ["--replications", "20"]),

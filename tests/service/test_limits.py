@@ -25,7 +25,7 @@ def _fields(response: Any) -> list[str]:
 
 def test_defaults_match_the_documented_limits() -> None:
     s = Settings()
-    assert s.max_body_bytes == 64 * MIB
+    assert s.max_body_bytes == 128 * MIB
     assert s.max_points == 2_000_000
     assert s.max_predict_points == 100_000
     assert s.max_curve_points == 10_000

@@ -8,6 +8,7 @@ ngx_http_gzip_module) and RFC 9457 for problem documents.
 
 from __future__ import annotations
 
+import json
 import re
 import subprocess
 from collections import Counter
@@ -149,3 +150,18 @@ def test_no_replica_reachable_is_a_503_problem_with_retry_after(tmp_path: Path) 
         assert re.fullmatch(r"[0-9a-f]{32}", response.headers["x-request-id"])
     finally:
         stop(gateway)
+
+
+@pytest.mark.system
+def test_streamed_batch_passes_the_gateway_line_by_line(stack: Stack) -> None:
+    # NDJSON: one JSON text per line; the gateway must neither buffer nor compress the stream.
+    demo = cold_store(seed=5)
+    series = [{"x": demo.x[::8].tolist(), "y": (demo.y[::8] + k).tolist(), "bandwidth": 2.0, "curve": {"points": 20}} for k in range(6)]
+    headers = {"accept": "application/x-ndjson", "accept-encoding": "gzip"}
+    with httpx.stream("POST", f"{stack.gateway}/v1/smooth/batch", json={"series": series}, headers=headers, timeout=60.0) as response:
+        assert response.status_code == 200
+        assert response.headers["content-type"].startswith("application/x-ndjson")
+        assert "content-encoding" not in response.headers
+        lines = [json.loads(line) for line in response.iter_lines() if line]
+    assert sorted(line["index"] for line in lines) == list(range(len(series)))
+    assert all(len(line["curve"]["estimate"]) == 20 for line in lines)
