@@ -29,8 +29,8 @@ from service.runtime.settings import Settings
 log = logging.getLogger("bandwise.service")
 
 CACHEABLE = ("kernels", "demo_list", "demo")
-#: paths whose answer is JSON or Arrow depending on ``Accept``
-_ARROW_PATHS = frozenset({"/v1/smooth", "/v1/bandwidth"})
+#: paths whose answer's form depends on ``Accept`` (JSON or Arrow; JSON or NDJSON for batches)
+_NEGOTIATED_PATHS = frozenset({"/v1/smooth", "/v1/bandwidth", "/v1/smooth/batch"})
 
 
 class Service:
@@ -194,7 +194,7 @@ class Service:
             headers["Content-Encoding"] = outcome.encoding
         # RFC 9110, section 12.5.5: name every request header the answer's form depended on, so caches keep them apart
         vary = []
-        if request.method == "POST" and request.url.path in _ARROW_PATHS:
+        if request.method == "POST" and request.url.path in _NEGOTIATED_PATHS:
             vary.append("Accept")
         if outcome.encoding or len(outcome.body) >= self.settings.gzip_min_bytes:
             vary.append("Accept-Encoding")
