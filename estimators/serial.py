@@ -146,6 +146,8 @@ EXCLUSION_CUT = 0.05
 PROBE_READINGS = 20000
 #: longer series are scored on means of consecutive readings (see :func:`aggregate_readings`)
 AGGREGATE_READINGS = 50000
+#: leave-out: a prediction from less than this share of the window's kernel weight is not scored
+REMAINING_CUT = 1e-4
 _SINGULAR = 1e-10
 
 
@@ -493,9 +495,10 @@ def _leave_out_terms(
         pw = _powers(u, 2 * p)
         s -= (kw * pw).T
         t -= (kw * yc[jj] * pw[: p + 1]).T
-    # numerical residue of the subtraction: moments that should be zero
-    tiny = 1e-12 * np.maximum(mom[:, 0, :1], 0.0)
-    s[:, :1] = np.where(s[:, :1] > tiny, s[:, :1], 0.0)
+    # numerical residue of the subtraction: when the readings kept carry less than REMAINING_CUT of the
+    # window's kernel weight, the subtraction has lost the digits of the prediction (undefined, NaN)
+    kept = s[:, 0] > REMAINING_CUT * np.maximum(mom[:, 0, 0], 0.0)
+    s[~kept] = np.nan
     rows = _local_inverse_rows(s, p)
     pred = np.einsum("mk,mk->m", rows, t)
     return (yc[probe] - pred) ** 2, trace
