@@ -545,6 +545,7 @@ def correlated_scores(
     weights: np.ndarray | None = None,
     criterion: str = "risk",
     rule: str = "min",
+    fallback_largest: bool = False,
 ) -> SerialScores:
     """Score candidate bandwidths for noise with the diagnosed serial correlation.
 
@@ -563,6 +564,9 @@ def correlated_scores(
     criterion : {"risk", "leave_out"}
         See the module notes.
     rule : {"min", "one_se"}
+    fallback_largest : bool
+        When no candidate can be scored (the readings left out cover every
+        window), choose the largest candidate instead of raising.
 
     Returns
     -------
@@ -616,6 +620,9 @@ def correlated_scores(
             scores[i] = float(np.mean(contrib))
             ses[i] = _block_se(contrib, block, n)
     if not np.isfinite(scores).any():
+        if fallback_largest:
+            last = grid.size - 1
+            return SerialScores(criterion, rule, grid, scores, ses, dfs, last, float(grid[last]), reported_lag)
         raise ValueError("no candidate bandwidth could be scored for correlated noise; widen the range")
     best = int(np.nanargmin(scores))
     tied = np.flatnonzero(np.isfinite(scores) & (scores <= scores[best] + 1e-12 * abs(scores[best])))

@@ -68,14 +68,15 @@ def select_correlated(
         ``selector`` is :data:`estimators.names.CORRELATED_SELECTOR`; every
         candidate keeps its score (NaN where undefined: the smallest candidates
         can leave too few readings in a window once ``2l + 1`` are left out,
-        which draws no caution); ``pilot`` holds the noise estimates and the
-        exclusion ``l``.
+        which draws no caution; when none can be scored the largest candidate
+        is chosen with an ``unscored_candidates`` caution); ``pilot`` holds the
+        noise estimates and the exclusion ``l``.
     """
     grid, cautions = candidate_grid(sample, kernel, degree, candidates, bandwidth_min, bandwidth_max, floor=floor)
     raised = bandwidth_min is None and grid[0] == floor
     scored = correlated_scores(
         sample.xs, sample.ys, grid, diagnosis, kernel=kernel, degree=degree, weights=sample.ws,
-        criterion=CRITERION, rule=rule,
+        criterion=CRITERION, rule=rule, fallback_largest=True,
     )
     chosen_i = int(np.flatnonzero(grid == scored.chosen)[0])
     edge = edge_caution(scored.best, grid, "best-scoring bandwidth", raised)
@@ -83,8 +84,17 @@ def select_correlated(
         edge = edge_caution(chosen_i, grid, "bandwidth chosen by one_se", raised)
     # the smallest candidates may leave too few readings in a window once 2l + 1 are left out: expected, no caution
     finite = np.flatnonzero(np.isfinite(scored.scores))
-    above = scored.scores[finite[0]:] if finite.size else scored.scores
-    extra: list[Caution | None] = [edge, unscored_caution(CORRELATED_SELECTOR, above)]
+    if finite.size:
+        extra: list[Caution | None] = [edge, unscored_caution(CORRELATED_SELECTOR, scored.scores[finite[0]:])]
+    else:
+        extra = [
+            Caution(
+                "unscored_candidates",
+                f"no candidate could be scored by {CORRELATED_SELECTOR}: leaving out the {2 * scored.exclusion + 1} "
+                "readings around each reading leaves too few to predict it from (the correlation reaches over much "
+                f"of the series), so the largest candidate ({grid[-1]:.4g}) is used; consider a fixed bandwidth",
+            )
+        ]
     cautions.extend(c for c in extra if c is not None)
     pilot = {
         "noise_autocorrelation": float(diagnosis.autocorrelation),

@@ -179,3 +179,18 @@ def test_auto_path_finds_ar1_at_phi_03() -> None:
     x = (np.arange(n) + 0.5) / n
     found = [fit(x, trend(x) + 0.3 * ar1(rng, n, 0.3), bandwidth=0.05).noise == "correlated" for _ in range(100)]
     assert np.mean(found) >= 0.8
+
+
+def test_no_scorable_candidate_falls_back_to_the_largest() -> None:
+    # by definition of leave-(2l+1)-out: with 2l + 1 >= n every window is left empty, so no candidate has a score
+    rng = np.random.default_rng(31)
+    n = 24
+    x = (np.arange(n) + 0.5) / n
+    y = trend(x) + 0.3 * ar1(rng, n, 0.97)
+    sel = select_bandwidth(x, y, noise="correlated", candidates=8)
+    assert sel.noise is not None
+    lag = exclusion_lag(sel.noise.autocorrelation)
+    assert 2 * lag + 1 >= n, f"setup: the estimate {sel.noise.autocorrelation:.2f} leaves readings to predict from"
+    assert np.all(np.isnan(sel.scores))
+    assert sel.chosen == sel.candidates[-1]
+    assert any(w.code == "unscored_candidates" for w in sel.warnings)
