@@ -147,7 +147,7 @@ PROBE_READINGS = 20000
 #: longer series are scored on means of consecutive readings (see :func:`aggregate_readings`)
 AGGREGATE_READINGS = 50000
 #: leave-out: a prediction from less than this share of the window's kernel weight is not scored
-REMAINING_CUT = 1e-4
+REMAINING_CUT = 1e-10
 _SINGULAR = 1e-10
 
 
