@@ -112,6 +112,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.special import ndtr
 
+from ._compiled_serial import difference_sums
 from .cautions import Caution
 from .kernels import Kernel
 from .sums import moment_sums
@@ -299,20 +300,23 @@ def diagnose_noise(
     .. [2] Box, G. E. P. and Jenkins, G. M. (1976). *Time Series Analysis:
        Forecasting and Control*. Holden-Day. Eq. 2.1.13 (Bartlett's formula).
     """
-    values = np.asarray(y, dtype=float)
+    xs = np.ascontiguousarray(x, dtype=float)
+    values = np.ascontiguousarray(y, dtype=float)
     if trend is not None:
         values = values - np.asarray(trend, dtype=float)
-    _, series, _ = series_in_x_order(x, values, weights)
-    m = series.size
+    w = np.ones_like(xs) if weights is None else np.ascontiguousarray(weights, dtype=float)
+    if xs.size > 1 and not np.all(xs[1:] >= xs[:-1]):
+        order = np.argsort(xs, kind="stable")
+        xs, values, w = xs[order], values[order], w[order]
+    # one pass over the sorted readings: the series of tie-group means and its lag-1 difference sums
+    m, d1, cross = difference_sums(xs, values, w)
     if m < 8:
         nan = math.nan
         return NoiseDiagnosis(nan, nan, nan, False, level, nan, nan, m)
-    d = np.diff(series)
-    d1 = float(np.dot(d, d))
     if d1 <= 0.0:
         return NoiseDiagnosis(0.0, 0.0, 1.0, False, level, 0.0, 0.0, m)
-    r = float(np.dot(d[1:], d[:-1])) / d1
-    count = d.size
+    r = cross / d1
+    count = m - 1
     z = (r + 0.5) * math.sqrt(2.0 * count)
     p = float(2.0 * ndtr(-abs(z)))
     phi = min(max(1.0 + 2.0 * r, -PHI_LIMIT), PHI_LIMIT)
