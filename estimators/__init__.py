@@ -11,7 +11,7 @@ from __future__ import annotations
 import importlib
 from typing import TYPE_CHECKING, Any
 
-from .names import BAND_METHODS, ENGINES, RULES, SCORED_SELECTORS, SELECTORS
+from .names import BAND_METHODS, ENGINES, NOISE_CHOICES, RULES, SCORED_SELECTORS, SELECTORS
 
 if TYPE_CHECKING:
     from .api import Smoother, fit
@@ -24,6 +24,7 @@ __all__ = [
     "BAND_METHODS",
     "ENGINES",
     "KERNELS",
+    "NOISE_CHOICES",
     "RULES",
     "SCORED_SELECTORS",
     "SELECTORS",

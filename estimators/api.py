@@ -6,6 +6,7 @@ selection (:mod:`estimators.bandwidth`) and uncertainty (:mod:`estimators.uncert
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from collections.abc import Sequence
 from typing import Any
@@ -17,6 +18,7 @@ from .bandwidth.choices import check_degree
 from .cautions import Caution
 from .kernels import Kernel, get_kernel
 from .local_poly import ENGINES, LocalPolynomial
+from .noise_choice import NoiseChoice, check_noise, choose_noise
 from .sample import SortedSample, validate_sample
 from .uncertainty import Bands, bands, prediction_interval, standard_error
 
@@ -27,7 +29,14 @@ class Smoother(LocalPolynomial):
     """A fitted kernel smoother; see :func:`fit`.
 
     The local fits come from :class:`estimators.local_poly.LocalPolynomial`;
-    this class adds the selection record and the uncertainty methods.
+    this class adds the selection record, the noise model and the uncertainty
+    methods.
+
+    Under serially correlated noise (``noise == "correlated"``) standard errors
+    and band half-widths are those of independent noise times
+    :attr:`se_factor` (the bias-corrected centre is kept), and a prediction
+    interval adds the marginal variance ``gamma(0)`` of one reading; see
+    ``docs/correlated-noise.md``.
     """
 
     def __init__(
@@ -39,9 +48,38 @@ class Smoother(LocalPolynomial):
         engine: str = "auto",
         selection: Selection | None = None,
         cautions: Sequence[Caution] = (),
+        noise_choice: NoiseChoice | None = None,
     ) -> None:
         super().__init__(sample, kernel, degree, bandwidth, engine, cautions)
         self.selection = selection
+        self.noise_choice = noise_choice
+
+    # -- the noise model (see estimators.noise_choice) ---------------------
+    @property
+    def noise(self) -> str:
+        """``"independent"`` or ``"correlated"``: the noise model behind bandwidth, standard errors and bands."""
+        return "independent" if self.noise_choice is None else self.noise_choice.used
+
+    @property
+    def noise_autocorrelation(self) -> float:
+        """Lag-1 autocorrelation estimate of the noise in ``x`` order (NaN when not estimable)."""
+        return math.nan if self.noise_choice is None else self.noise_choice.autocorrelation
+
+    @property
+    def se_factor(self) -> float:
+        """Factor on the independent-noise standard errors: 1, or ``sqrt(long-run variance) / sigma`` under correlation.
+
+        ``sigma`` is the noise sd of a typical reading, ``residual_scale * sqrt(mean(1 / w))`` (``residual_scale``
+        itself for unit weights); see :func:`estimators.serial.correlated_se_factor`.
+        """
+        choice = self.noise_choice
+        if choice is None or not choice.correlated:
+            return 1.0
+        # the diagnosis measures readings as given; residual_scale is the sd of a unit-weight reading, so it is
+        # carried to a typical reading (variance sigma^2 mean(1 / w)): a common factor on the weights cancels
+        ws = self.sample.ws
+        reading_scale = self.residual_scale * math.sqrt(float(np.mean(1.0 / ws))) if ws.size else math.nan
+        return self.memo("se_factor", lambda: choice.se_factor(reading_scale))
 
     @property
     def warnings(self) -> list[Caution]:
@@ -54,7 +92,7 @@ class Smoother(LocalPolynomial):
     # -- uncertainty (see estimators.uncertainty) --------------------------
     def standard_error(self, points: Any, *, robust: bool = False) -> np.ndarray:
         """Pointwise standard error of the curve estimate (see :func:`estimators.uncertainty.standard_error`)."""
-        return standard_error(self, points, robust=robust)
+        return standard_error(self, points, robust=robust) * self.se_factor
 
     def bands(
         self,
@@ -71,14 +109,33 @@ class Smoother(LocalPolynomial):
         Further keyword options (``multiplier``, ``bias_correction``, ``engine``)
         pass through to :func:`estimators.uncertainty.bands`.
         """
-        return bands(
+        out = bands(
             self, points, level=level, method=method, replicates=replicates, seed=seed, simultaneous=simultaneous,
             **options,
         )
+        factor = self.se_factor
+        if factor == 1.0:
+            return out
+        centre = out.estimate
+        return dataclasses.replace(
+            out,
+            lower=centre - factor * (centre - out.lower),
+            upper=centre + factor * (out.upper - centre),
+            se=out.se * factor,
+        )
 
     def prediction_interval(self, points: Any, level: float = 0.95) -> tuple[np.ndarray, np.ndarray]:
-        """Interval for a new observation at ``points`` (curve uncertainty plus noise)."""
-        return prediction_interval(self, points, level=level)
+        """Interval for a new observation at ``points`` (curve uncertainty plus noise).
+
+        Under correlated noise the curve's variance is scaled by ``se_factor**2``
+        and the noise term is the marginal variance ``gamma(0)`` of one reading.
+        """
+        if self.noise != "correlated" or self.noise_choice is None:
+            return prediction_interval(self, points, level=level)
+        return prediction_interval(
+            self, points, level=level, curve_factor=self.se_factor,
+            noise_variance=self.noise_choice.diagnosis.marginal_variance,
+        )
 
 
 def fit(
@@ -95,6 +152,7 @@ def fit(
     candidates: int = 40,
     bandwidth_min: float | None = None,
     bandwidth_max: float | None = None,
+    noise: str = "auto",
 ) -> Smoother:
     """Fit a local polynomial kernel smoother.
 
@@ -114,6 +172,15 @@ def fit(
         two identical points.
     engine : {"auto", "exact", "binned"}
         See :func:`estimators.local_poly.choose_engine`.
+    noise : {"auto", "independent", "correlated"}
+        Serial correlation of the noise in ``x`` order. ``auto`` (default)
+        tests for it (:func:`estimators.serial.diagnose_noise`, two-sided level
+        0.01); when it is found, or always with ``correlated``, an automatic
+        bandwidth comes from modified (leave-(2l+1)-out) cross-validation,
+        standard errors and bands are scaled to the long-run variance, and
+        prediction intervals use the marginal noise variance; a
+        ``correlated_noise`` caution says so. ``independent`` keeps the
+        independent-noise path. A fixed bandwidth is kept as given.
 
     Returns
     -------
@@ -125,13 +192,26 @@ def fit(
     distinct ``x`` values than ``degree + 1`` (or the local system is
     numerically singular) the fit at that point drops to the highest degree the
     data support; :meth:`LocalPolynomial.solve` reports the degree used.
+
+    No method can tell slow real variation apart from strongly correlated
+    noise at every bandwidth; if the wiggles are real, pass
+    ``noise="independent"``.
+
+    References
+    ----------
+    .. [1] Chu, C.-K. and Marron, J. S. (1991). Comparison of two bandwidth
+       selectors with dependent errors. *Ann. Statist.* 19, 1906-1918.
+    .. [2] Hart, J. D. (1991). Kernel regression estimation with time series
+       errors. *J. R. Statist. Soc. B* 53, 173-187.
     """
     kern = get_kernel(kernel)
     deg = check_degree(degree)
     if engine not in ENGINES:
         raise ValueError(f"unknown engine {engine!r}; choose one of {', '.join(ENGINES)}")
+    requested = check_noise(noise)
     sample = validate_sample(x, y, weights)
     selection = None
+    choice = choose_noise(sample, requested)
     if isinstance(bandwidth, str):
         if bandwidth != "auto":
             raise ValueError(f"bandwidth must be a positive number or 'auto', got {bandwidth!r}")
@@ -144,6 +224,7 @@ def fit(
             candidates=candidates,
             bandwidth_min=bandwidth_min,
             bandwidth_max=bandwidth_max,
+            noise=choice,
         )
         h = selection.chosen
     else:
@@ -155,7 +236,9 @@ def fit(
     cautions = []
     if sample.n_used < 2 * (deg + 2):
         cautions.append(Caution("few_points", f"only {sample.n_used} points carry weight; the curve is poorly determined"))
-    return Smoother(sample, kern, deg, h, engine, selection, cautions)
+    if selection is None:
+        cautions.extend(choice.cautions())  # an automatic bandwidth's record carries them
+    return Smoother(sample, kern, deg, h, engine, selection, cautions, choice)
 
 
 def _check_bandwidth(bandwidth: Any) -> float:

@@ -112,6 +112,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.special import ndtr
 
+from ._compiled_serial import difference_sums
 from .cautions import Caution
 from .kernels import Kernel
 from .sums import moment_sums
@@ -146,6 +147,8 @@ EXCLUSION_CUT = 0.05
 PROBE_READINGS = 20000
 #: longer series are scored on means of consecutive readings (see :func:`aggregate_readings`)
 AGGREGATE_READINGS = 50000
+#: leave-out: a prediction from less than this share of the window's kernel weight is not scored
+REMAINING_CUT = 1e-10
 _SINGULAR = 1e-10
 
 
@@ -297,20 +300,23 @@ def diagnose_noise(
     .. [2] Box, G. E. P. and Jenkins, G. M. (1976). *Time Series Analysis:
        Forecasting and Control*. Holden-Day. Eq. 2.1.13 (Bartlett's formula).
     """
-    values = np.asarray(y, dtype=float)
+    xs = np.ascontiguousarray(x, dtype=float)
+    values = np.ascontiguousarray(y, dtype=float)
     if trend is not None:
         values = values - np.asarray(trend, dtype=float)
-    _, series, _ = series_in_x_order(x, values, weights)
-    m = series.size
+    w = np.ones_like(xs) if weights is None else np.ascontiguousarray(weights, dtype=float)
+    if xs.size > 1 and not np.all(xs[1:] >= xs[:-1]):
+        order = np.argsort(xs, kind="stable")
+        xs, values, w = xs[order], values[order], w[order]
+    # one pass over the sorted readings: the series of tie-group means and its lag-1 difference sums
+    m, d1, cross = difference_sums(xs, values, w)
     if m < 8:
         nan = math.nan
         return NoiseDiagnosis(nan, nan, nan, False, level, nan, nan, m)
-    d = np.diff(series)
-    d1 = float(np.dot(d, d))
     if d1 <= 0.0:
         return NoiseDiagnosis(0.0, 0.0, 1.0, False, level, 0.0, 0.0, m)
-    r = float(np.dot(d[1:], d[:-1])) / d1
-    count = d.size
+    r = cross / d1
+    count = m - 1
     z = (r + 0.5) * math.sqrt(2.0 * count)
     p = float(2.0 * ndtr(-abs(z)))
     phi = min(max(1.0 + 2.0 * r, -PHI_LIMIT), PHI_LIMIT)
@@ -493,9 +499,10 @@ def _leave_out_terms(
         pw = _powers(u, 2 * p)
         s -= (kw * pw).T
         t -= (kw * yc[jj] * pw[: p + 1]).T
-    # numerical residue of the subtraction: moments that should be zero
-    tiny = 1e-12 * np.maximum(mom[:, 0, :1], 0.0)
-    s[:, :1] = np.where(s[:, :1] > tiny, s[:, :1], 0.0)
+    # numerical residue of the subtraction: when the readings kept carry less than REMAINING_CUT of the
+    # window's kernel weight, the subtraction has lost the digits of the prediction (undefined, NaN)
+    kept = s[:, 0] > REMAINING_CUT * np.maximum(mom[:, 0, 0], 0.0)
+    s[~kept] = np.nan
     rows = _local_inverse_rows(s, p)
     pred = np.einsum("mk,mk->m", rows, t)
     return (yc[probe] - pred) ** 2, trace
@@ -542,6 +549,7 @@ def correlated_scores(
     weights: np.ndarray | None = None,
     criterion: str = "risk",
     rule: str = "min",
+    fallback_largest: bool = False,
 ) -> SerialScores:
     """Score candidate bandwidths for noise with the diagnosed serial correlation.
 
@@ -560,6 +568,9 @@ def correlated_scores(
     criterion : {"risk", "leave_out"}
         See the module notes.
     rule : {"min", "one_se"}
+    fallback_largest : bool
+        When no candidate can be scored (the readings left out cover every
+        window), choose the largest candidate instead of raising.
 
     Returns
     -------
@@ -613,6 +624,9 @@ def correlated_scores(
             scores[i] = float(np.mean(contrib))
             ses[i] = _block_se(contrib, block, n)
     if not np.isfinite(scores).any():
+        if fallback_largest:
+            last = grid.size - 1
+            return SerialScores(criterion, rule, grid, scores, ses, dfs, last, float(grid[last]), reported_lag)
         raise ValueError("no candidate bandwidth could be scored for correlated noise; widen the range")
     best = int(np.nanargmin(scores))
     tied = np.flatnonzero(np.isfinite(scores) & (scores <= scores[best] + 1e-12 * abs(scores[best])))

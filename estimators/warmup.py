@@ -69,6 +69,8 @@ def warm(progress: Callable[[int, int, str], None] | None = None) -> float:
                 s.predict(np.array([17.5]))  # far from the data: sums term by term
             fit(x, y, kernel=kernel, degree=degree, bandwidth=1.0, engine="binned").predict(np.linspace(0, 10, 7))
             fit(x, y, kernel=kernel, degree=degree, bandwidth="auto").predict(np.linspace(0, 10, 7))
+            if kernel == "gaussian" and degree == 1:  # the correlated-noise path; every fit runs the diagnosis's loop
+                fit(x, y, kernel=kernel, degree=degree, bandwidth="auto", noise="correlated").predict(np.linspace(0, 10, 7))
     grid = np.linspace(0.5, 9.5, 9)
     for kernel in BAND_KERNELS:
         step()

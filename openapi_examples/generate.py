@@ -24,6 +24,10 @@ HERE = Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE.parent))
 
 HOUR_MS = 3_600_000.0
+NOTE = (
+    " The noise is sent as independent: the daily cycle moves more between hourly readings than the noise does,"
+    " which the difference-based test of noise auto would read as correlated noise."
+)
 
 
 def _cold(step: int) -> tuple[list[float], list[float]]:
@@ -88,11 +92,11 @@ def build() -> list[dict[str, Any]]:
             "path": "/v1/smooth/batch",
             "status": 200,
             "summary": "Batch: cold store, parcel depot, and one broken series",
-            "description": "Three series in one call. The third has one y value too few, so its slot holds a problem while the other two are answered.",
+            "description": "Three series in one call. The third has one y value too few, so its slot holds a problem while the other two are answered." + NOTE,
             "request": {
                 "series": [
                     {"x": cx, "y": cy, "bandwidth": 2.5, "curve": {"points": 12}},
-                    {"x": dx, "y": dy, "bandwidth": 3 * HOUR_MS, "curve": {"points": 12}},
+                    {"x": dx, "y": dy, "bandwidth": 3 * HOUR_MS, "noise": "independent", "curve": {"points": 12}},
                     {"x": cx[:10], "y": cy[:9], "bandwidth": 2.5},
                 ]
             },
@@ -110,8 +114,8 @@ def build() -> list[dict[str, Any]]:
             "path": "/v1/smooth",
             "status": 200,
             "summary": "Parcel depot, epoch-millisecond timestamps",
-            "description": "One week of hourly parcel counts; x is epoch milliseconds, so the bandwidth of three hours is 10,800,000 ms. The last prediction is one hour past the data and is flagged extrapolated.",
-            "request": {"x": dx, "y": dy, "bandwidth": 3 * HOUR_MS, "kernel": "gaussian", "curve": {"points": 28}, "predict_at": [dx[0] + 34 * HOUR_MS, dx[-1] + HOUR_MS]},
+            "description": "One week of hourly parcel counts; x is epoch milliseconds, so the bandwidth of three hours is 10,800,000 ms. The last prediction is one hour past the data and is flagged extrapolated." + NOTE,
+            "request": {"x": dx, "y": dy, "bandwidth": 3 * HOUR_MS, "kernel": "gaussian", "noise": "independent", "curve": {"points": 28}, "predict_at": [dx[0] + 34 * HOUR_MS, dx[-1] + HOUR_MS]},
         },
         {
             "name": "time_axis_gap",
@@ -119,8 +123,8 @@ def build() -> list[dict[str, Any]]:
             "status": 200,
             "summary": "Parcel depot, RFC 3339 timestamps, a 31-hour outage and two missing counts",
             "description": "x as RFC 3339 date-times, a bandwidth of three hours as an ISO 8601 duration (answered in ms and as a duration), two null counts left out "
-            "(missing_values), the scanner outage found as a gap: the curve is null inside it and the prediction there is flagged in_gap (data_gap).",
-            "request": {"x": tx, "y": ty, "bandwidth": "PT3H", "curve": {"points": 24}, "predict_at": ["2025-06-17T12:00:00Z", "2025-06-19T06:00:00+02:00"], "bands": {"method": "analytic"}},
+            "(missing_values), the scanner outage found as a gap: the curve is null inside it and the prediction there is flagged in_gap (data_gap)." + NOTE,
+            "request": {"x": tx, "y": ty, "bandwidth": "PT3H", "noise": "independent", "curve": {"points": 24}, "predict_at": ["2025-06-17T12:00:00Z", "2025-06-19T06:00:00+02:00"], "bands": {"method": "analytic"}},
         },
         {
             "name": "bandwidth_selection",

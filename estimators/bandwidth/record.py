@@ -8,6 +8,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..cautions import Caution
+from ..noise_choice import NoiseChoice
 
 
 @dataclass
@@ -17,6 +18,8 @@ class Selection:
     Attributes
     ----------
     selector, rule : str
+        ``selector`` is the criterion actually used: ``"modified_cv"`` when the
+        noise was treated as correlated.
     candidates : ndarray
         Candidate bandwidths (ascending, kernel's own scale).
     scores : ndarray
@@ -38,7 +41,10 @@ class Selection:
         for plugin and rule_of_thumb).
     pilot : dict
         Intermediate quantities of plugin / rule_of_thumb (noise variance,
-        curvature functional, pilot bandwidth, spread of x, ...).
+        curvature functional, pilot bandwidth, spread of x, ...); for
+        ``modified_cv`` the noise estimates and the exclusion ``l``.
+    noise : NoiseChoice or None
+        The noise model used and its diagnosis (set by the selection entry points).
     """
 
     selector: str
@@ -52,3 +58,4 @@ class Selection:
     score_se: float = math.nan
     scoring: str = "exact"
     pilot: dict[str, float] = field(default_factory=dict)
+    noise: NoiseChoice | None = None

@@ -10,6 +10,7 @@ import numpy as np
 from ..cautions import Caution
 from ..kernels import Kernel, convert_bandwidth, get_kernel
 from ..names import RULES, SCORED_SELECTORS, SCORINGS, SELECTORS
+from ..noise_choice import NoiseChoice, check_noise, choose_noise
 from ..sample import SortedSample, validate_sample
 from .binned import BinnedScorer, binned_floor, resolve_scoring
 from .cautions import edge_caution, flat_caution, roughness_caution, unscored_caution
@@ -21,6 +22,7 @@ from .plugin import plugin_bandwidth
 from .record import Selection
 from .rule_of_thumb import rule_of_thumb_bandwidth
 from .scores import score_of, score_se
+from .serial_select import select_correlated
 
 #: binned loocv: candidates where some tie group has a larger leverage are refitted exactly
 LOOCV_BINNED_MAX_LEVERAGE = 0.9
@@ -186,20 +188,37 @@ def select_for_sample(
     bandwidth_min: float | None = None,
     bandwidth_max: float | None = None,
     scoring: str = "auto",
+    noise: str | NoiseChoice = "auto",
 ) -> Selection:
-    """Select a bandwidth for validated, sorted data; see :func:`select_bandwidth`."""
+    """Select a bandwidth for validated, sorted data; see :func:`select_bandwidth`.
+
+    ``noise`` is a ``noise`` argument (checked here) or a :class:`NoiseChoice`
+    already made for this sample.
+    """
     selector = check_choice("selector", selector, SELECTORS)
     rule = check_choice("rule", rule, RULES)
     scoring = check_choice("scoring", scoring, SCORINGS)
     degree = check_degree(degree)
+    requested = noise.requested if isinstance(noise, NoiseChoice) else check_noise(noise)
     if rule == "one_se" and selector not in SCORED_SELECTORS:
         raise ValueError(
             f"rule 'one_se' needs a selector that scores candidates with a standard error "
             f"({', '.join(SCORED_SELECTORS)}); {selector} computes its bandwidth from a formula"
         )
     mode = resolve_scoring(scoring, kernel, sample, selector)
-    select = _select_scored if selector in SCORED_SELECTORS else _select_formula
-    return select(selector, rule, sample, kernel, degree, mode, candidates, bandwidth_min, bandwidth_max)
+    choice = noise if isinstance(noise, NoiseChoice) else choose_noise(sample, requested)
+    if choice.correlated:
+        floor = binned_floor(sample) if mode == "binned" else 0.0
+        selection = select_correlated(
+            sample, kernel, degree, choice.diagnosis, rule=rule, candidates=candidates,
+            bandwidth_min=bandwidth_min, bandwidth_max=bandwidth_max, floor=floor,
+        )
+    else:
+        select = _select_scored if selector in SCORED_SELECTORS else _select_formula
+        selection = select(selector, rule, sample, kernel, degree, mode, candidates, bandwidth_min, bandwidth_max)
+    selection.noise = choice
+    selection.warnings.extend(choice.cautions())
+    return selection
 
 
 def select_bandwidth(
@@ -215,6 +234,7 @@ def select_bandwidth(
     bandwidth_min: float | None = None,
     bandwidth_max: float | None = None,
     scoring: str = "auto",
+    noise: str = "auto",
 ) -> Selection:
     """Select a bandwidth and return the evidence.
 
@@ -237,6 +257,13 @@ def select_bandwidth(
     scoring : {"auto", "exact", "binned"}
         How gcv / loocv / aicc score candidates; ``auto`` bins from 1000
         points (gaussian: always) except for the uniform and triangular kernels.
+    noise : {"auto", "independent", "correlated"}
+        Serial correlation of the noise in ``x`` order. ``auto`` tests for it
+        (difference-based, two-sided level 0.01) and, when found, or always
+        with ``correlated``, scores the candidates by modified (leave-(2l+1)-out)
+        cross-validation instead of ``selector`` (the record's ``selector`` is
+        then ``"modified_cv"``); ``independent`` uses ``selector`` as given.
+        The diagnosis is kept in the record's ``noise``.
 
     Returns
     -------
@@ -249,8 +276,9 @@ def select_bandwidth(
     """
     kern = get_kernel(kernel)
     deg = check_degree(degree)
+    requested = check_noise(noise)
     sample = validate_sample(x, y, weights)
     return select_for_sample(
         sample, kern, deg, selector=selector, rule=rule, candidates=candidates,
-        bandwidth_min=bandwidth_min, bandwidth_max=bandwidth_max, scoring=scoring,
+        bandwidth_min=bandwidth_min, bandwidth_max=bandwidth_max, scoring=scoring, noise=requested,
     )

@@ -653,9 +653,13 @@ class BandwiseClient(_ClientBase):
             ``bandwidth_min``, ``bandwidth_max``, ``engine``, ``curve``
             (``{"points": n}`` or ``{"at": [...]}``), ``predict_at`` (array),
             ``bands`` (``{"method", "level", "replicates", "seed",
-            "simultaneous"}``; pointwise unless simultaneous) and
-            ``include_fitted``.  Unknown options and values out of range are
-            refused before sending (:class:`ValidationFailed`, ``status`` None).
+            "simultaneous"}``; pointwise unless simultaneous),
+            ``include_fitted`` and ``noise`` ("auto", "independent" or
+            "correlated": serial correlation of the noise in x order; the
+            answer's ``diagnostics.noise`` and ``diagnostics.noise_autocorrelation``
+            say which path was used and the lag-1 estimate).  Unknown options and
+            values out of range are refused before sending (:class:`ValidationFailed`,
+            ``status`` None).
 
         Returns
         -------
@@ -684,7 +688,8 @@ class BandwiseClient(_ClientBase):
 
         Options are the data and selection options of :meth:`smooth`: ``weights``,
         ``kernel``, ``degree``, ``selector``, ``rule``, ``candidate_count``,
-        ``bandwidth_min``, ``bandwidth_max``.  Automatic bandwidths can be
+        ``bandwidth_min``, ``bandwidth_max``, ``noise`` (``result.diagnostics.noise``
+        says which noise model was used).  Automatic bandwidths can be
         implausible: look at ``result.bandwidth.scores`` and ``result.warnings``.
         """
         return self._send(self._prepare_bandwidth(x, y, options))  # type: ignore[no-any-return]

@@ -30,7 +30,17 @@ from pydantic import (
 )
 
 from service.contract.field_errors import FIELD_ERROR_CODES, FieldProblem
-from service.contract.names import BAND_METHOD_NAMES, ENGINE_NAMES, KERNEL_NAMES, RULE_NAMES, SCORED_SELECTORS, SELECTOR_NAMES
+from service.contract.names import (
+    BAND_METHOD_NAMES,
+    CORRELATED_SELECTOR_NAME,
+    ENGINE_NAMES,
+    KERNEL_NAMES,
+    NOISE_NAMES,
+    NOISE_USED_NAMES,
+    RULE_NAMES,
+    SCORED_SELECTORS,
+    SELECTOR_NAMES,
+)
 from service.contract.warnings import WARNING_CODES
 
 if TYPE_CHECKING:  # the checker sees plain strings; at run time each is a Literal of the names in estimators
@@ -39,12 +49,16 @@ if TYPE_CHECKING:  # the checker sees plain strings; at run time each is a Liter
     RuleName = str
     BandMethod = str
     EngineName = str
+    NoiseName = str
+    NoiseUsed = str
 else:
     KernelName = Literal[KERNEL_NAMES]
     SelectorName = Literal[SELECTOR_NAMES]
     RuleName = Literal[RULE_NAMES]
     BandMethod = Literal[BAND_METHOD_NAMES]
     EngineName = Literal[ENGINE_NAMES]
+    NoiseName = Literal[NOISE_NAMES]
+    NoiseUsed = Literal[NOISE_USED_NAMES]
 
 Finite = Annotated[float, Field(allow_inf_nan=False)]
 NonNegativeFinite = Annotated[float, Field(allow_inf_nan=False, ge=0)]
@@ -233,6 +247,18 @@ class _DataFields(_Strict):
     candidate_count: Annotated[int, Field(ge=2)] = Field(40, description="Number of candidate bandwidths scored by the selector (limit BANDWISE_MAX_CANDIDATES = 200). The answer's `bandwidth.candidates` lists them.")
     bandwidth_min: Length | None = Field(None, description="Smallest candidate bandwidth (default: chosen from the data spacing); an ISO 8601 duration with timestamp x.")
     bandwidth_max: Length | None = Field(None, description="Largest candidate bandwidth (default: chosen from the data range); an ISO 8601 duration with timestamp x.")
+    noise: NoiseName = Field(
+        "auto",
+        description=(
+            "Serial correlation of the noise in x order. auto (default): the readings are tested for it (difference-based test "
+            "at level 0.01); when it is found, an automatic bandwidth comes from modified cross-validation (bandwidth.selector "
+            f"`{CORRELATED_SELECTOR_NAME}`, which then replaces `selector`), standard errors and bands allow for the correlation "
+            "and prediction intervals use the variance of one reading; warning `correlated_noise`. correlated: that path "
+            "whatever the test says. independent: the noise is taken as independent (the path for data whose wiggles are real). "
+            "The answer's diagnostics.noise says which path was used. Slow real variation and strongly correlated noise cannot be "
+            "told apart at every bandwidth."
+        ),
+    )
 
     @model_validator(mode="after")
     def _check_data(self, info: ValidationInfo) -> Any:
@@ -310,7 +336,7 @@ class BandwidthOut(_Out):
     """The bandwidth used, and the selection record when it was chosen automatically."""
 
     value: float = Field(..., description="Bandwidth in x units, on the kernel's own scale.")
-    selector: str | None = Field(..., description="Selector that chose it; null when the bandwidth was given.")
+    selector: str | None = Field(..., description=f"Selector that chose it (`{CORRELATED_SELECTOR_NAME}` when the noise was treated as correlated); null when the bandwidth was given.")
     rule: str | None = Field(..., description="Selection rule (min or one_se); null when given.")
     candidates: list[float] | None = Field(..., description="Candidate bandwidths scored; null when given.")
     scores: list[float | None] | None = Field(..., description="Score of each candidate (lower is better); null where a candidate could not be scored.")
@@ -371,6 +397,8 @@ class DiagnosticsOut(_Out):
     x_max: float
     bands: BandsInfo | None = None
     n_missing: int = Field(0, description="Readings left out because x, y or the weight was null (missing: drop).")
+    noise: NoiseUsed = Field("independent", description="Noise model used for bandwidth, standard errors, bands and prediction intervals: independent or correlated (see the request's `noise`).")
+    noise_autocorrelation: float | None = Field(None, description="Lag-1 autocorrelation of the noise in x order (difference-based estimate; readings sharing an x averaged); null with fewer than 8 distinct x values.")
 
 
 class GapOut(_Out):
@@ -399,10 +427,18 @@ class SmoothResponse(_Out):
     warnings: list[WarningOut]
 
 
+class NoiseDiagnosticsOut(_Out):
+    """The noise model behind the selection."""
+
+    noise: NoiseUsed = Field(..., description="Noise model used for the selection: independent or correlated (see the request's `noise`).")
+    noise_autocorrelation: float | None = Field(None, description="Lag-1 autocorrelation of the noise in x order (difference-based estimate); null with fewer than 8 distinct x values.")
+
+
 class BandwidthResponse(_Out):
     """Result of bandwidth selection."""
 
     bandwidth: BandwidthOut
+    diagnostics: NoiseDiagnosticsOut
     warnings: list[WarningOut]
 
 

@@ -11,7 +11,7 @@ from __future__ import annotations
 WARNING_CODES: dict[str, str] = {
     "implausibly_rough": "The automatic bandwidth gives a fit with very many effective degrees of freedom for the number of distinct x values: it may follow the noise. Look at the curve; consider a larger bandwidth.",
     "selection_at_grid_edge": "The chosen bandwidth is the smallest or largest candidate (or a formula's value outside the candidate range was clipped to it): the best bandwidth may lie beyond the range. Widen bandwidth_min / bandwidth_max.",
-    "correlated_noise": "The residuals are serially correlated along x (the message gives the lag-one autocorrelation estimate). Cross-validation and GCV then pick too small a bandwidth and independent-noise bands are too narrow; use the correlated-noise settings.",
+    "correlated_noise": "The noise of neighbouring readings (in x order) was treated as correlated: found by the test with noise auto (the message gives the lag-1 autocorrelation estimate), or asked for with noise correlated. The bandwidth then comes from modified cross-validation and standard errors, bands and prediction intervals allow for the correlation. Slow real variation and strongly correlated noise cannot be told apart: if the wiggles are real, send noise independent.",
     "flat_selection_score": "The selector's score hardly changes over a wide range of bandwidths (within one standard error): the data do not pin the bandwidth down.",
     "unscored_candidates": "Some candidate bandwidths have no score (the fit or the score is undefined there); their `scores` entries are null.",
     "sparse_design": "The x values are so uneven that the candidate range had to be widened to give every window enough distinct x values.",

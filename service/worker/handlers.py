@@ -169,6 +169,7 @@ def _smooth_arrays(req: SmoothRequest, x: Any, y: Any, weights: Any, limits: dic
         candidates=_candidates(req, limits),
         bandwidth_min=_length(req.bandwidth_min),
         bandwidth_max=_length(req.bandwidth_max),
+        noise=req.noise,
     )
     cautions: list[Any] = list(s.warnings)
 
@@ -267,6 +268,8 @@ def _smooth_arrays(req: SmoothRequest, x: Any, y: Any, weights: Any, limits: dic
         "x_min": float(s.x_min),
         "x_max": float(s.x_max),
         "bands": band_info,
+        "noise": s.noise,
+        "noise_autocorrelation": _float_or_none(s.noise_autocorrelation),
     }
     body["warnings"] = _cautions(cautions)
     return body
@@ -346,12 +349,18 @@ def select_only(req: BandwidthRequest, limits: dict[str, int], arrays: arrow_cod
                 candidates=_candidates(req, limits),
                 bandwidth_min=_length(req.bandwidth_min),
                 bandwidth_max=_length(req.bandwidth_max),
+                noise=req.noise,
             )
     except ValueError as exc:
         raise ProblemError("unsuitable-data", str(exc)) from None
     except (ArithmeticError, MemoryError) as exc:
         raise _extreme(exc) from None
-    return time_axis.finish_bandwidth({"bandwidth": _bandwidth_object(sel.chosen, sel), "warnings": _cautions(sel.warnings)}, prep)
+    noise = {
+        "noise": sel.noise.used if sel.noise is not None else "independent",
+        "noise_autocorrelation": _float_or_none(sel.noise.autocorrelation) if sel.noise is not None else None,
+    }
+    body = {"bandwidth": _bandwidth_object(sel.chosen, sel), "diagnostics": noise, "warnings": _cautions(sel.warnings)}
+    return time_axis.finish_bandwidth(body, prep)
 
 
 # ----------------------------------------------------------------- job kinds

@@ -46,6 +46,8 @@ MODULES: list[tuple[str, list[str], list[str]]] = [
     ("bench_time_axis", [], ["--n", "1e5", "--rounds", "2"]),
     ("study_selection", [], ["--replications", "5"]),
     ("study_coverage", [], ["--replications", "20"]),
+    ("bench_correlated", [], ["--n", "1e5", "--repeat", "2"]),
+    ("study_correlated", [], ["--replications", "2", "--sizes", "300"]),
 ]
 
 #: where a full run writes its report, relative to the repository root

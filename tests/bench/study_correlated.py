@@ -11,27 +11,24 @@ Truths:
 * ``sine``: ``m(t) = sin(2 pi t) + 0.5 t`` (the curve of the issue);
 * ``bump``: ``m(t) = 0.5 t + exp(-50 (t - 0.6)^2)`` (a narrow bump on a line).
 
-Every replication follows the default path of the service with ``noise``
-``auto``: the noise is diagnosed (:func:`estimators.serial.diagnose_noise`,
-two-sided level 0.01); when it is not found correlated the bandwidth is GCV's
-(``estimators.select_bandwidth``), otherwise the correlated-noise criterion
-scores the same candidates (:func:`estimators.serial.correlated_scores`). The
-curve is then fitted with the public ``estimators.fit`` at the chosen
-bandwidth. The oracle is the bandwidth minimising the average squared error
+Every replication calls the public ``estimators.fit(x, y)`` with every
+setting at its default (``noise="auto"``, ``bandwidth="auto"``): the noise is
+diagnosed (difference-based test, two-sided level 0.01); when it is not found
+correlated the bandwidth is GCV's, otherwise modified (leave-(2l+1)-out)
+cross-validation scores the same candidates. The oracle is the bandwidth
+minimising the average squared error
 ``ASE(h) = n^-1 sum (mhat_h(x_i) - m(x_i))^2`` over a fine geometric grid
 (``estimators.fit`` with fixed bandwidths, local linear, gaussian kernel).
 
-Bands: the analytic 95 % band of ``estimators.uncertainty.bands`` (bias
-corrected) with its half-width scaled by
-:func:`estimators.serial.correlated_se_factor` when the noise was found
-correlated; coverage of the truth at 33 interior points in [0.1, 0.9]
-(pointwise: share of points; simultaneous: share of replications covering
-all 33 with the sup-t band).
+Bands: the smoother's analytic 95 % band (``Smoother.bands``, bias corrected,
+scaled for correlated noise when that path was taken); coverage of the truth
+at 33 interior points in [0.1, 0.9] (pointwise: share of points;
+simultaneous: share of replications covering all 33 with the sup-t band).
 
 Targets (issue 23): median ASE ratio <= 1.3 at phi = 0, <= 1.5 at 0.3 and
 0.6, <= 1.8 at 0.9, p90 <= 3; pointwise coverage 0.90-0.985 (>= 0.85 at 0.9).
 
-Run: ``python -m tests.bench.study_correlated [--full] [--replications R] [--criterion risk]``.
+Run: ``python -m tests.bench.study_correlated [--full] [--replications R]``.
 """
 
 from __future__ import annotations
@@ -44,9 +41,7 @@ from concurrent.futures import ProcessPoolExecutor
 
 import numpy as np
 
-from estimators import KERNELS, fit, select_bandwidth
-from estimators.serial import CRITERIA, correlated_scores, correlated_se_factor, diagnose_noise
-from estimators.uncertainty import bands
+from estimators import fit
 
 from .machine import describe
 
@@ -84,36 +79,27 @@ def data(truth: str, n: int, phi: float, design: str, seed: int) -> tuple[np.nda
     return x, m + SD * ar1(rng, n, phi), m
 
 
-def replicate(args: tuple[str, int, float, str, int, str]) -> dict[str, float]:
-    truth, n, phi, design, seed, criterion = args
+def replicate(args: tuple[str, int, float, str, int]) -> dict[str, float]:
+    truth, n, phi, design, seed = args
     x, y, m = data(truth, n, phi, design, seed)
-    gcv = select_bandwidth(x, y, selector="gcv")
-    diag = diagnose_noise(x, y)
-    if diag.correlated:
-        sel = correlated_scores(x, y, gcv.candidates, diag, kernel=KERNELS["gaussian"], degree=1, criterion=criterion)
-        h = sel.chosen
-    else:
-        h = gcv.chosen
-    fine = np.geomspace(0.5 * gcv.candidates[0], 0.5, FINE)
-    ase = np.array([np.mean((fit(x, y, bandwidth=float(b)).fitted() - m) ** 2) for b in fine])
-    s = fit(x, y, bandwidth=h)
+    s = fit(x, y)  # every setting at its default: noise auto, bandwidth auto
+    assert s.selection is not None
+    fine = np.geomspace(0.5 * s.selection.candidates[0], 0.5, FINE)
+    ase = np.array([np.mean((fit(x, y, bandwidth=float(b), noise="independent").fitted() - m) ** 2) for b in fine])
     ase_h = float(np.mean((s.fitted() - m) ** 2))
-    factor = correlated_se_factor(diag, s.residual_scale) if diag.correlated else 1.0
     mt = TRUTHS[truth](POINTS)
-    out = {"ratio": ase_h / float(ase.min()), "correlated": float(diag.correlated), "phi_hat": diag.autocorrelation}
+    out = {"ratio": ase_h / float(ase.min()), "correlated": float(s.noise == "correlated"), "phi_hat": s.noise_autocorrelation}
     for simultaneous in (False, True):
-        b = bands(s, POINTS, level=LEVEL, method="analytic", simultaneous=simultaneous, seed=seed)
-        centre = 0.5 * (b.lower + b.upper)
-        half = 0.5 * (b.upper - b.lower) * factor
-        hit = np.abs(mt - centre) <= half
+        b = s.bands(POINTS, level=LEVEL, method="analytic", simultaneous=simultaneous, seed=seed)
+        hit = (b.lower <= mt) & (mt <= b.upper)
         out["simultaneous" if simultaneous else "pointwise"] = float(hit.all() if simultaneous else hit.mean())
     return out
 
 
-def run(replications: int, sizes: Sequence[int], jobs: int, criterion: str, truths: Sequence[str], phis: Sequence[float]) -> list[tuple[tuple[str, int, float, str], dict[str, np.ndarray]]]:
+def run(replications: int, sizes: Sequence[int], jobs: int, truths: Sequence[str], phis: Sequence[float]) -> list[tuple[tuple[str, int, float, str], dict[str, np.ndarray]]]:
     cells = [(t, n, phi, d) for t in truths for n in sizes for phi in phis for d in DESIGNS]
     tasks = [
-        (t, n, phi, d, 1_000_003 * ci + r, criterion)
+        (t, n, phi, d, 1_000_003 * ci + r)
         for ci, (t, n, phi, d) in enumerate(cells)
         for r in range(replications)
     ]
@@ -157,15 +143,14 @@ def main(argv: Sequence[str] | None = None) -> None:
     parser.add_argument("--sizes", type=int, nargs="*", default=None)
     parser.add_argument("--truths", nargs="*", default=list(TRUTHS))
     parser.add_argument("--phis", type=float, nargs="*", default=list(PHIS))
-    parser.add_argument("--criterion", default="leave_out", choices=CRITERIA)
     parser.add_argument("--jobs", type=int, default=2)
     args = parser.parse_args(list(argv) if argv is not None else None)
     reps = args.replications or (100 if args.full else 8)
     sizes = args.sizes or (list(SIZES) if args.full else [300, 1000])
     start = time.perf_counter()
-    results = run(reps, sizes, args.jobs, args.criterion, args.truths, args.phis)
+    results = run(reps, sizes, args.jobs, args.truths, args.phis)
     print("## Correlated-noise study: ASE ratio to the oracle and band coverage (noise auto)\n")
-    print(f"AR(1) noise, sd {SD}; local linear, gaussian kernel; criterion {args.criterion}; {reps} replications per "
+    print(f"AR(1) noise, sd {SD}; local linear, gaussian kernel; every setting at its default (noise auto); {reps} replications per "
           f"cell; oracle over {FINE} bandwidths; 95 % analytic bands at {POINTS.size} points.\n")
     print(table(results))
     print(f"\nMachine: {describe()}; {time.perf_counter() - start:.0f} s")

@@ -90,7 +90,7 @@ def test_loocv_through_the_diagonal_equals_refitting_without_each_point(
     w = rng.uniform(0.5, 2.0, n) if weighted else np.ones(n)
     sel = select_bandwidth(
         x, y, kernel=kernel, degree=degree, selector="loocv", weights=w if weighted else None,
-        candidates=5, scoring="exact",
+        candidates=5, scoring="exact", noise="independent",
     )
     expected = [_brute_force_loocv(x, y, w, kernel, float(h), degree) for h in sel.candidates]
     np.testing.assert_allclose(sel.scores, expected, rtol=1e-8)
@@ -103,7 +103,7 @@ def test_binned_loocv_matches_refitting_within_the_binning_error() -> None:
     """
     x, y = _sine(60, 3)
     x = np.round(x * 30.0) / 30.0
-    sel = select_bandwidth(x, y, selector="loocv", candidates=6)
+    sel = select_bandwidth(x, y, selector="loocv", candidates=6, noise="independent")
     assert sel.scoring == "binned"
     expected = [_brute_force_loocv(x, y, np.ones(x.size), "gaussian", float(h), 1) for h in sel.candidates]
     np.testing.assert_allclose(sel.scores, expected, rtol=2e-3)
@@ -418,7 +418,7 @@ def test_rough_caution_from_turns_of_the_curve() -> None:
     n = 400
     x = np.arange(n, dtype=float)
     y = np.where((np.arange(n) // 2) % 2 == 0, 1.0, -1.0)
-    sel = select_bandwidth(x, y, bandwidth_min=2.0, bandwidth_max=2.2, candidates=3)
+    sel = select_bandwidth(x, y, bandwidth_min=2.0, bandwidth_max=2.2, candidates=3, noise="independent")
     i = int(np.flatnonzero(sel.candidates == sel.chosen)[0])
     assert sel.effective_df[i] <= 0.25 * n
     assert "implausibly_rough" in _codes(sel)
@@ -428,7 +428,7 @@ def test_unscored_candidates_are_nan_with_a_caution() -> None:
     x = np.arange(50, dtype=float)
     y = np.sin(x / 5.0)
     sel = select_bandwidth(x, y, kernel="epanechnikov", selector="loocv", bandwidth_min=0.5, bandwidth_max=10.0,
-                           scoring="exact")
+                           scoring="exact", noise="independent")
     assert np.isnan(sel.scores[0])  # windows of one point: nothing left to predict from
     assert np.isfinite(sel.scores[-1])
     assert "unscored_candidates" in _codes(sel)

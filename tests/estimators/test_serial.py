@@ -277,3 +277,22 @@ def test_long_series_are_scored_on_means() -> None:
     finally:
         serial.AGGREGATE_READINGS = old
     assert abs(np.log(agg.chosen / full.chosen)) <= np.log(grid[1] / grid[0]) * 2.01
+
+
+def test_diagnosis_with_ties_and_zero_weights_against_a_direct_computation() -> None:
+    # the statistic written out with numpy: r = lag-1 autocorrelation (about zero) of the differences of the
+    # weighted tie-group means, z = (r + 1/2) sqrt(2 N) (Bartlett's formula, Box & Jenkins 1976, eq. 2.1.13)
+    rng = np.random.default_rng(71)
+    n = 600
+    x = np.round(rng.uniform(0.0, 10.0, n), 1)  # about 100 distinct values, unsorted
+    y = trend(x / 10.0) + 0.3 * rng.standard_normal(n)
+    w = rng.choice([0.0, 0.5, 1.0, 2.0], n)
+    got = diagnose_noise(x, y, w)
+    keep = w > 0
+    xs, ys, ws = x[keep], y[keep], w[keep]
+    groups = np.unique(xs)
+    means = np.array([np.sum(ws[xs == g] * ys[xs == g]) / np.sum(ws[xs == g]) for g in groups])
+    d = np.diff(means)
+    r = float(d[1:] @ d[:-1]) / float(d @ d)
+    assert got.length == groups.size
+    assert got.statistic == pytest.approx((r + 0.5) * math.sqrt(2.0 * d.size), rel=1e-10)

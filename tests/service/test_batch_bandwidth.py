@@ -78,10 +78,12 @@ def test_bandwidth_endpoint_matches_estimators(api: Harness) -> None:
     assert response.status_code == 200, response.text[:500]
     doc = response.json()
     BandwidthResponse.model_validate(doc)
-    assert set(doc) == {"bandwidth", "warnings"}
+    assert set(doc) == {"bandwidth", "diagnostics", "warnings"}
     ref = estimators.select_bandwidth(np.array(CX), np.array(CY), kernel="epanechnikov", selector="loocv", candidates=15)
+    assert ref.noise is not None and doc["diagnostics"]["noise"] == ref.noise.used
+    assert math.isclose(doc["diagnostics"]["noise_autocorrelation"], ref.noise.autocorrelation, rel_tol=1e-12)
     bw = doc["bandwidth"]
-    assert bw["selector"] == "loocv" and bw["rule"] == "min"
+    assert bw["selector"] == ("loocv" if ref.noise.used == "independent" else "modified_cv") and bw["rule"] == "min"
     assert math.isclose(bw["value"], ref.chosen, rel_tol=1e-12)
     assert len(bw["candidates"]) == len(bw["scores"]) == 15
     np.testing.assert_allclose(bw["candidates"], ref.candidates, rtol=1e-12)

@@ -314,3 +314,44 @@ def test_bands_of_a_fit_through_every_point_are_null_with_a_warning(api: Harness
     assert [doc["predictions"][0][k] for k in ("lower", "upper", "interval_lower", "interval_upper")] == [None] * 4
     assert doc["diagnostics"]["residual_scale"] is None
     assert "noise_not_estimable" in [w["code"] for w in doc["warnings"]]
+
+
+def _ar1_series(n: int, phi: float, seed: int) -> tuple[list[float], list[float]]:
+    """Readings every 15 minutes (x in minutes): a daily-scale curve plus stationary AR(1) noise of sd 0.3."""
+    rng = np.random.default_rng(seed)
+    e = np.empty(n)
+    e[0] = rng.standard_normal()
+    for i in range(1, n):
+        e[i] = phi * e[i - 1] + math.sqrt(1.0 - phi * phi) * rng.standard_normal()
+    x = np.arange(n) * 15.0
+    return x.tolist(), (np.sin(2.0 * math.pi * x / x[-1]) + 0.3 * e).tolist()
+
+
+@pytest.mark.parametrize("noise", ["auto", "independent", "correlated"])
+def test_noise_field_matches_estimators(api: Harness, noise: str) -> None:
+    # the service is a thin layer: path, estimate, bands and intervals equal estimators.fit(..., noise=...)
+    x, y = _ar1_series(400, 0.6, 3)
+    doc = _smooth(api, x=x, y=y, noise=noise, bandwidth=150.0, curve={"points": 15}, predict_at=[3000.0],
+                  bands={"method": "analytic"})
+    ref = estimators.fit(np.array(x), np.array(y), bandwidth=150.0, noise=noise)
+    assert doc["bandwidth"]["selector"] is None  # a fixed bandwidth keeps no selection record
+    assert doc["diagnostics"]["noise"] == ref.noise
+    assert math.isclose(doc["diagnostics"]["noise_autocorrelation"], ref.noise_autocorrelation, rel_tol=1e-12)
+    cx = np.array(doc["curve"]["x"])
+    band = ref.bands(cx, method="analytic")
+    _close(doc["curve"]["upper"], band.upper)
+    _close(doc["curve"]["se"], ref.standard_error(cx))
+    lo, hi = ref.prediction_interval(np.array([3000.0]))
+    _close([doc["predictions"][0]["interval_lower"], doc["predictions"][0]["interval_upper"]], np.array([lo[0], hi[0]]))
+    codes = {w["code"]: w["message"] for w in doc["warnings"]}
+    assert ("correlated_noise" in codes) == (ref.noise == "correlated")
+    if ref.noise == "correlated":
+        assert f"{ref.noise_autocorrelation:.2f}" in codes["correlated_noise"]
+
+
+def test_unknown_noise_is_a_field_error(api: Harness) -> None:
+    response = api.post("/v1/smooth", json={"x": X, "y": Y, "noise": "ar1"})
+    assert response.status_code == 422
+    errors = response.json()["errors"]
+    assert [e["field"] for e in errors] == ["noise"]
+    assert "ar1" not in errors[0]["type"] and "literal" not in errors[0]["type"]  # the service's own code

@@ -13,6 +13,8 @@ draws with what the service answered, read straight off the network:
   larger numeric bandwidth and redraws the curve from its answer;
 * switching to automatic shows the bandwidth the service chose, and the score
   chart has one vertex per scored candidate with the chosen value marked;
+* the noise switch sends ``noise`` and the page shows the path the service
+  reports (``diagnostics.noise``) and its lag-1 estimate;
 * a pasted CSV is sent as it is and its rows are plotted;
 * epoch-millisecond x values show as UTC dates on the axis, checked against
   Python's own calendar (``datetime``).
@@ -374,8 +376,36 @@ def test_automatic_shows_the_chosen_bandwidth(tab: Page) -> None:
     check_chart_matches(tab, request, body)
 
 
+def test_noise_switch_sends_noise_and_shows_the_diagnosis(tab: Page) -> None:
+    request, body = open_page(tab)
+    assert request["noise"] == "auto"
+    readout = tab.page.inner_text("#noise-readout")
+    assert f"treated as {body['diagnostics']['noise']}" in readout
+    phi = body["diagnostics"]["noise_autocorrelation"]
+    shown = float(re.search(r"autocorrelation (−?\d+(?:\.\d+)?)", readout).group(1).replace("\u2212", "-"))
+    assert shown == pytest.approx(phi, abs=0.01)
+    for choice in ("correlated", "independent"):
+        seen = len(tab.smooth)
+        tab.page.select_option("#noise", choice)
+        request, body = tab.settle(seen)
+        assert request["noise"] == choice
+        assert body["diagnostics"]["noise"] == choice
+        assert tab.attr("#noise-readout", "data-noise") == choice
+        assert f"as chosen ({choice})" in tab.page.inner_text("#noise-readout")
+        check_chart_matches(tab, request, body)
+
+
+def independent_noise(tab: Page) -> None:
+    """Choose independent noise: the chart tests compare geometry, and a short pasted series or the depot's
+    daily cycle is read as strongly correlated noise by noise auto, whose band reaches far beyond the plot."""
+    seen = len(tab.smooth)
+    tab.page.select_option("#noise", "independent")
+    tab.settle(seen)
+
+
 def test_pasted_csv_is_plotted(tab: Page) -> None:
     open_page(tab)
+    independent_noise(tab)
     tab.page.click("#paste-box summary")
     tab.page.fill("#paste", PASTED_CSV)
     seen = len(tab.smooth)
@@ -411,7 +441,8 @@ def test_switching_data_during_a_fit_draws_only_the_new_data(tab: Page) -> None:
     """An answer that arrives after the data changed must not be drawn over the new data."""
     with tab.page.expect_request(lambda r: r.url == f"{tab.base}/v1/smooth", timeout=WAIT_MS):
         tab.page.goto(f"{tab.base}/")
-    seen = len(tab.smooth)  # the cold-store fit is in flight now
+    tab.page.select_option("#noise", "independent")  # a second cold-store fit goes out (see independent_noise)
+    seen = len(tab.smooth)  # cold-store fits are in flight now
     tab.page.select_option("#dataset", "parcel_depot")
     request, body = tab.settle(seen)
     demo = httpx.get(f"{tab.base}/v1/demo/parcel_depot", timeout=10.0).json()
@@ -423,6 +454,7 @@ def test_switching_data_during_a_fit_draws_only_the_new_data(tab: Page) -> None:
 
 def test_epoch_milliseconds_show_as_dates(tab: Page) -> None:
     open_page(tab)
+    independent_noise(tab)
     seen = len(tab.smooth)
     tab.page.select_option("#dataset", "parcel_depot")
     request, body = tab.settle(seen)

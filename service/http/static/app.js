@@ -186,6 +186,7 @@ function buildRequest() {
     y: d.y,
     kernel: $("kernel").value,
     degree: Number($("degree").value),
+    noise: $("noise").value,
   };
   if (currentMode() === "auto") {
     request.bandwidth = "auto";
@@ -325,7 +326,7 @@ function formatY(v) {
   return `${formatNumber(v, 3)}${unit}`;
 }
 
-const SELECTOR_NAMES = { gcv: "GCV", loocv: "LOOCV", aicc: "AICc", plugin: "plug-in", rule_of_thumb: "rule-of-thumb" };
+const SELECTOR_NAMES = { gcv: "GCV", loocv: "LOOCV", aicc: "AICc", plugin: "plug-in", rule_of_thumb: "rule-of-thumb", modified_cv: "modified CV" };
 const DEGREE_NAMES = ["Local constant (Nadaraya–Watson, degree 0)", "Local linear (degree 1)", "Local quadratic (degree 2)"];
 const BAND_NAMES = { analytic: "analytic", wild_bootstrap: "wild bootstrap", residual_bootstrap: "residual bootstrap" };
 
@@ -348,6 +349,7 @@ function render(d, request, response) {
   });
   renderBandwidth(request, bw, selectorName);
   renderDiagnostics(response.diagnostics || {});
+  renderNoise(request, response.diagnostics || {});
   renderWarnings(response.warnings || []);
   renderSummary(request, response, chart, selectorName);
   renderScoreSummary(bw, selectorName);
@@ -384,7 +386,19 @@ const DIAGNOSTIC_NAMES = {
   x_min: "smallest x",
   x_max: "largest x",
   bands: "band",
+  noise: "noise model used",
+  noise_autocorrelation: "noise lag-1 autocorrelation",
 };
+
+/** Which noise path the service used, and the lag-1 estimate it reported. */
+function renderNoise(request, diag) {
+  const used = diag.noise || "independent";
+  const phi = typeof diag.noise_autocorrelation === "number" ? formatNumber(diag.noise_autocorrelation, 2) : "not estimable";
+  const how = request.noise === "auto" ? (used === "correlated" ? "found by the test" : "no correlation found") : `as chosen (${request.noise})`;
+  const out = $("noise-readout");
+  out.dataset.noise = used;
+  out.textContent = `Noise treated as ${used}, ${how}; lag-1 autocorrelation ${phi}.`;
+}
 
 function describeBands(b) {
   const kind = b.simultaneous ? "simultaneous" : "pointwise";
@@ -583,7 +597,7 @@ function applyPaste() {
 function wire() {
   $("dataset").addEventListener("change", (e) => chooseDataset(e.target.value));
   $("paste-apply").addEventListener("click", applyPaste);
-  for (const id of ["kernel", "degree", "selector", "rule", "bw-min", "bw-max", "band-level", "band-simultaneous", "band-replicates"]) {
+  for (const id of ["kernel", "degree", "noise", "selector", "rule", "bw-min", "bw-max", "band-level", "band-simultaneous", "band-replicates"]) {
     $(id).addEventListener("change", scheduleRefit);
   }
   $("band-method").addEventListener("change", () => {
