@@ -9,7 +9,7 @@ from __future__ import annotations
 import math
 from collections.abc import Sequence
 from dataclasses import replace
-from typing import Any
+from typing import Any, cast
 
 import numpy as np
 
@@ -19,6 +19,8 @@ from .bandwidth.rule_of_thumb import rule_of_thumb_bandwidth
 from .cautions import Caution
 from .kernels import Kernel, get_kernel
 from .local_poly import ENGINES, LocalPolynomial
+from .names import FAMILIES
+from .poisson import check_counts, poisson_fit
 from .robust import RobustWeights, resistant_weights
 from .sample import SortedSample, validate_sample
 from .uncertainty import Bands, bands, prediction_interval, standard_error
@@ -112,6 +114,7 @@ def fit(
     bandwidth_min: float | None = None,
     bandwidth_max: float | None = None,
     robust: bool = False,
+    family: str = "gaussian",
 ) -> Smoother:
     """Fit a local polynomial kernel smoother.
 
@@ -136,6 +139,11 @@ def fit(
         they give no weight are left out (see :mod:`estimators.robust`). With ``bandwidth="auto"``
         the criterion is computed on the readings that are kept (see :func:`_robust_fit`);
         ``selection.selector`` is then prefixed ``robust_``.
+    family : {"gaussian", "poisson"}
+        ``"poisson"``: counts or rates (``y >= 0``), a local log-linear likelihood fit with
+        positive estimates and bands (see :mod:`estimators.poisson`; gaussian kernel, degree 0
+        or 1; ``bandwidth="auto"`` minimises the local likelihood AIC, selector
+        ``likelihood_aic``). Not combined with ``robust``.
 
     Returns
     -------
@@ -152,7 +160,18 @@ def fit(
     deg = check_degree(degree)
     if engine not in ENGINES:
         raise ValueError(f"unknown engine {engine!r}; choose one of {', '.join(ENGINES)}")
+    if family not in FAMILIES:
+        raise ValueError(f"unknown family {family!r}; choose one of {', '.join(FAMILIES)}")
+    if family == "poisson":
+        check_counts(y)
     sample = validate_sample(x, y, weights)
+    if family == "poisson":
+        if robust:
+            raise ValueError("robust is not available with family 'poisson'; send robust false")
+        if isinstance(bandwidth, str) and bandwidth != "auto":
+            raise ValueError(f"bandwidth must be a positive number or 'auto', got {bandwidth!r}")
+        bw = bandwidth if isinstance(bandwidth, str) else _check_bandwidth(bandwidth)
+        return cast(Smoother, poisson_fit(sample, kern, deg, bw, engine, candidates, bandwidth_min, bandwidth_max))
     if robust and isinstance(bandwidth, str):
         return _robust_fit(
             sample, kern, deg, bandwidth, engine,

@@ -8,7 +8,7 @@ modules that implement each choice take their tuple from here, and
 
 from __future__ import annotations
 
-__all__ = ["BAND_METHODS", "ENGINES", "KERNEL_NAMES", "RULES", "SCORED_SELECTORS", "SCORINGS", "SELECTORS"]
+__all__ = ["BAND_METHODS", "ENGINES", "FAMILIES", "KERNEL_NAMES", "RULES", "SCORED_SELECTORS", "SCORINGS", "SELECTORS"]
 
 KERNEL_NAMES: tuple[str, ...] = ("gaussian", "epanechnikov", "uniform", "triangular", "biweight", "triweight", "tricube", "cosine")
 SELECTORS: tuple[str, ...] = ("loocv", "gcv", "aicc", "plugin", "rule_of_thumb")
@@ -18,3 +18,5 @@ RULES: tuple[str, ...] = ("min", "one_se")
 SCORINGS: tuple[str, ...] = ("auto", "exact", "binned")
 ENGINES: tuple[str, ...] = ("auto", "exact", "binned")
 BAND_METHODS: tuple[str, ...] = ("analytic", "wild_bootstrap", "residual_bootstrap")
+FAMILIES: tuple[str, ...] = ("gaussian", "poisson")
+"""Noise families: gaussian (least squares) and poisson (counts, local likelihood with a log link)."""
