@@ -8,7 +8,7 @@ that validates requests does not load the numerics.
 
 from __future__ import annotations
 
-from estimators.names import BAND_METHODS, ENGINES, KERNEL_NAMES, RULES, SELECTORS
+from estimators.names import BAND_METHODS, ENGINES, FAMILIES, KERNEL_NAMES, RULES, SELECTORS
 from estimators.names import SCORED_SELECTORS as _SCORED_SELECTORS
 
 SELECTOR_NAMES: tuple[str, ...] = SELECTORS
@@ -16,5 +16,6 @@ SCORED_SELECTORS: tuple[str, ...] = _SCORED_SELECTORS  # selectors whose scores 
 RULE_NAMES: tuple[str, ...] = RULES
 ENGINE_NAMES: tuple[str, ...] = ENGINES
 BAND_METHOD_NAMES: tuple[str, ...] = BAND_METHODS
+FAMILY_NAMES: tuple[str, ...] = FAMILIES
 
-__all__ = ["BAND_METHOD_NAMES", "ENGINE_NAMES", "KERNEL_NAMES", "RULE_NAMES", "SCORED_SELECTORS", "SELECTOR_NAMES"]
+__all__ = ["BAND_METHOD_NAMES", "ENGINE_NAMES", "FAMILY_NAMES", "KERNEL_NAMES", "RULE_NAMES", "SCORED_SELECTORS", "SELECTOR_NAMES"]
