@@ -297,7 +297,7 @@ class PoissonSmoother(LocalPolynomial):
         est = np.exp(eta)
         warn = []
         if method != "analytic" or simultaneous:
-            warn.append(Caution("band_method_replaced", "counts get the analytic pointwise band on the log scale; ask for method 'analytic'"))
+            warn.append(Caution("counts_bands", "counts get the analytic pointwise band on the log scale; ask for method 'analytic'"))
         return Bands(
             lower=np.exp(eta - z * se_eta), upper=np.exp(eta + z * se_eta), se=est * se_eta, estimate=est,
             method="analytic", level=lev, simultaneous=False, replicates=None, seed=None, critical_value=z,
