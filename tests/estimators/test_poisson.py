@@ -63,4 +63,4 @@ def test_counts_estimates_and_bands_stay_positive_and_cover() -> None:
         band = s.bands(grid, method="analytic")
         assert np.all(band.lower > 0) and np.all(s.predict(grid) > 0)
         hits.append(np.mean((band.lower <= lam(grid)) & (lam(grid) <= band.upper)))
-    assert 0.85 <= float(np.mean(hits)) <= 0.99
+    assert 0.88 <= float(np.mean(hits)) <= 0.99  # target 0.90-0.985, less the Monte Carlo error of 6 samples
