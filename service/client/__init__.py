@@ -75,6 +75,7 @@ from service.client.errors import (
 )
 from service.client.results import (
     _CAN_IGNORE_EXTRA,
+    AnomalyArrays,
     BandwidthResult,
     BatchResult,
     CurveArrays,
@@ -97,6 +98,7 @@ from service.contract.field_errors import RENAMED_FIELDS, field_errors
 from service.contract.models import BandwidthRequest, FieldErrorOut, SmoothRequest
 
 __all__ = [
+    "AnomalyArrays",
     "AsyncBandwiseClient",
     "BandwiseClient",
     "BandwiseError",
@@ -626,8 +628,10 @@ class BandwiseClient(_ClientBase):
             ``bandwidth_min``, ``bandwidth_max``, ``engine``, ``curve``
             (``{"points": n}`` or ``{"at": [...]}``), ``predict_at`` (array),
             ``bands`` (``{"method", "level", "replicates", "seed",
-            "simultaneous"}``; pointwise unless simultaneous) and
-            ``include_fitted``.  Unknown options and values out of range are
+            "simultaneous"}``; pointwise unless simultaneous),
+            ``include_fitted``, ``robust`` (bool), ``family`` ("gaussian" or
+            "poisson" for counts) and ``anomalies`` (``{"level": 0.999}``;
+            see :meth:`SmoothResult.anomaly_arrays`).  Unknown options and values out of range are
             refused before sending (:class:`ValidationFailed`, ``status`` None).
 
         Returns
