@@ -47,6 +47,7 @@ import numpy as np
 from scipy.special import ndtri, xlogy
 from scipy.stats import poisson
 
+from .bandwidth.cautions import edge_caution
 from .bandwidth.grid import candidate_grid
 from .bandwidth.record import Selection
 from .cautions import Caution
@@ -142,6 +143,14 @@ class PoissonSmoother(LocalPolynomial):
         self._w2_plan: MomentPlan | None = None
         self._y_plan = MomentPlan(sample.xs, (sample.ws * sample.ys)[:, None], kernel, self.bandwidth, 1, engine=engine_used)
         self._y_mean = float(np.sum(sample.ws * sample.ys) / np.sum(sample.ws))
+
+    @property
+    def warnings(self) -> list[Caution]:
+        """Fit-level cautions and those of the bandwidth selection."""
+        out = list(self.cautions)
+        if self.selection is not None:
+            out.extend(self.selection.warnings)
+        return out
 
     # -- the local likelihood --------------------------------------------------
     def _node_grid(self, m: int) -> np.ndarray | None:
@@ -438,6 +447,9 @@ def poisson_fit(
         raise ValueError("no candidate bandwidth gives a defined fit; give a bandwidth")
     best = int(np.nanargmin(scores))
     chosen = float(grid[best])
+    edge = edge_caution(best, grid, "likelihood AIC choice", False)
+    if edge is not None:
+        cautions.append(edge)
     selection = Selection(
         selector="likelihood_aic", rule="min", candidates=grid, scores=scores, chosen=chosen,
         gaussian_equivalent=chosen, warnings=list(cautions), effective_df=dfs, scoring="exact",

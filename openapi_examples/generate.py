@@ -137,8 +137,8 @@ def build() -> list[dict[str, Any]]:
             "path": "/v1/smooth",
             "status": 200,
             "summary": "Parcel depot as counts",
-            "description": "One week of hourly parcel counts fitted as counts (family poisson): the estimate and the analytic 95 % band stay above zero, also in the quiet night hours; the bandwidth is chosen by the local likelihood AIC.",
-            "request": {"x": dx, "y": dy, "family": "poisson", "curve": {"points": 28}, "bands": {"method": "analytic"}},
+            "description": "One week of hourly parcel counts fitted as counts (family poisson): the estimate and the analytic 95 % band stay above zero, also in the quiet night hours; bandwidth two hours (7,200,000 ms).",
+            "request": {"x": dx, "y": dy, "family": "poisson", "bandwidth": 2 * HOUR_MS, "curve": {"points": 28}, "bands": {"method": "analytic"}},
         },
         {
             "name": "bandwidth_selection",

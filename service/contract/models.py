@@ -402,8 +402,8 @@ class DiagnosticsOut(_Out):
     x_max: float
     bands: BandsInfo | None = None
     n_missing: int = Field(0, description="Readings left out because x, y or the weight was null (missing: drop).")
-    family: str = Field("gaussian", description="gaussian or poisson: the family fitted.")
-    robust: bool = Field(False, description="True for an outlier-resistant fit.")
+    family: str = Field("gaussian", description="The family fitted; present when it is not gaussian.")
+    robust: bool = Field(False, description="True for an outlier-resistant fit (present only then).")
     n_outliers: int | None = Field(None, description="With robust: readings left out of the fit as outliers.")
 
 

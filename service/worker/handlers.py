@@ -176,7 +176,7 @@ def _smooth_arrays(req: SmoothRequest, x: Any, y: Any, weights: Any, limits: dic
     rob = s.robustness_weights
     if rob is not None and np.any(rob == 0):
         count = int(np.count_nonzero(rob == 0))
-        cautions.append(_Caution("outliers", f"The robust fit left {_plural(count, 'reading', 'was')} out as outliers; fitted.robustness_weights marks them (include_fitted)."))
+        cautions.append(_Caution("outliers", f"The robust fit left {count} reading{'s' if count > 1 else ''} out as {'outliers' if count > 1 else 'an outlier'}; fitted.robustness_weights marks {'them' if count > 1 else 'it'} (include_fitted)."))
 
     curve_spec = req.curve
     if curve_spec is not None and curve_spec.at is not None:
@@ -280,10 +280,12 @@ def _smooth_arrays(req: SmoothRequest, x: Any, y: Any, weights: Any, limits: dic
         "x_min": float(s.x_min),
         "x_max": float(s.x_max),
         "bands": band_info,
-        "family": req.family,
-        "robust": bool(req.robust),
-        "n_outliers": None if rob is None else int(np.count_nonzero(rob == 0)),
     }
+    if req.family != "gaussian":
+        body["diagnostics"]["family"] = req.family
+    if rob is not None:
+        body["diagnostics"]["robust"] = True
+        body["diagnostics"]["n_outliers"] = int(np.count_nonzero(rob == 0))
     body["warnings"] = _cautions(cautions)
     return body
 

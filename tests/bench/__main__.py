@@ -45,6 +45,7 @@ MODULES: list[tuple[str, list[str], list[str]]] = [
     ("bench_time_axis", [], ["--n", "1e5", "--rounds", "2"]),
     ("study_selection", [], ["--replications", "5"]),
     ("study_coverage", [], ["--replications", "20"]),
+    ("study_robust", [], ["--replications", "10", "--speed-n", "20000"]),
 ]
 
 #: where a full run writes its report, relative to the repository root
