@@ -20,7 +20,7 @@ from .cautions import Caution
 from .kernels import Kernel, get_kernel
 from .local_poly import ENGINES, LocalPolynomial
 from .names import FAMILIES
-from .poisson import check_counts, poisson_fit
+from .poisson import check_counts, poisson_fit, resistant_poisson_fit
 from .robust import RobustWeights, resistant_weights
 from .sample import SortedSample, validate_sample
 from .uncertainty import Bands, bands, prediction_interval, standard_error
@@ -143,7 +143,8 @@ def fit(
         ``"poisson"``: counts or rates (``y >= 0``), a local log-linear likelihood fit with
         positive estimates and bands (see :mod:`estimators.poisson`; gaussian kernel, degree 0
         or 1; ``bandwidth="auto"`` minimises the local likelihood AIC, selector
-        ``likelihood_aic``). Not combined with ``robust``.
+        ``likelihood_aic``). With ``robust`` the resistant scheme runs on Pearson residuals
+        (:func:`estimators.poisson.resistant_poisson_fit`).
 
     Returns
     -------
@@ -166,12 +167,11 @@ def fit(
         check_counts(y)
     sample = validate_sample(x, y, weights)
     if family == "poisson":
-        if robust:
-            raise ValueError("robust is not available with family 'poisson'; send robust false")
         if isinstance(bandwidth, str) and bandwidth != "auto":
             raise ValueError(f"bandwidth must be a positive number or 'auto', got {bandwidth!r}")
         bw = bandwidth if isinstance(bandwidth, str) else _check_bandwidth(bandwidth)
-        return cast(Smoother, poisson_fit(sample, kern, deg, bw, engine, candidates, bandwidth_min, bandwidth_max))
+        count_fit = resistant_poisson_fit if robust else poisson_fit
+        return cast(Smoother, count_fit(sample, kern, deg, bw, engine, candidates, bandwidth_min, bandwidth_max))
     if robust and isinstance(bandwidth, str):
         return _robust_fit(
             sample, kern, deg, bandwidth, engine,

@@ -30,6 +30,7 @@ Gervini, D. & Yohai, V. J. (2002). A class of robust and fully efficient regress
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
 
 import numpy as np
@@ -147,6 +148,7 @@ def resistant_weights(
     engine: str = "auto",
     start: np.ndarray | None = None,
     iterations: int = ROBUSTNESS_ITERATIONS,
+    residuals: Callable[[SortedSample], np.ndarray] | None = None,
 ) -> RobustWeights:
     """Robustness weights at a fixed bandwidth (see the module notes).
 
@@ -159,16 +161,25 @@ def resistant_weights(
         unweighted fit.
     iterations : int
         Number of bisquare reweightings.
+    residuals : callable, optional
+        ``residuals(weighted_sample)``: the (standardised) residuals, caller's order, of the fit
+        to a reweighted sample; default the local polynomial fit's ``y - fitted``.
     """
     counted = sample.w > 0
+
+    def resid(smp: SortedSample) -> np.ndarray:
+        if residuals is not None:
+            return residuals(smp)
+        out: np.ndarray = LocalPolynomial(smp, kernel, degree, bandwidth, engine).residuals()
+        return out
+
     if start is None:
-        v = huber_weights(LocalPolynomial(sample, kernel, degree, bandwidth, engine).residuals(), counted)
+        v = huber_weights(resid(sample), counted)
     else:
         v = np.asarray(start, dtype=float)
     b, cut = v, float("nan")
     for _ in range(max(int(iterations), 1)):
-        fitted = LocalPolynomial(sample.reweighted(v) if np.any(v != 1.0) else sample, kernel, degree, bandwidth, engine)
-        b, cut = bisquare_weights(fitted.residuals(), counted)
+        b, cut = bisquare_weights(resid(sample.reweighted(v) if np.any(v != 1.0) else sample), counted)
         if not np.any(counted & (b > 0)):
             break  # every reading would drop out: keep the previous weights
         v = b

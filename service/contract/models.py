@@ -243,7 +243,7 @@ class _DataFields(_Strict):
     candidate_count: Annotated[int, Field(ge=2)] = Field(40, description="Number of candidate bandwidths scored by the selector (limit BANDWISE_MAX_CANDIDATES = 200). The answer's `bandwidth.candidates` lists them.")
     bandwidth_min: Length | None = Field(None, description="Smallest candidate bandwidth (default: chosen from the data spacing); an ISO 8601 duration with timestamp x.")
     bandwidth_max: Length | None = Field(None, description="Largest candidate bandwidth (default: chosen from the data range); an ISO 8601 duration with timestamp x.")
-    robust: bool = Field(False, description="Outlier-resistant fit: bisquare robustness iterations (Cleveland 1979), then readings with a residual beyond 6 median absolute residuals are left out of the fit, the bandwidth criterion and the noise scale. The selector is then reported as robust_<selector>. Not with family poisson.")
+    robust: bool = Field(False, description="Outlier-resistant fit: bisquare robustness iterations (Cleveland 1979), then readings with a residual beyond 6 median absolute residuals are left out of the fit, the bandwidth criterion and the noise scale. The selector is then reported as robust_<selector>. With family poisson the same scheme runs on Pearson residuals.")
     family: FamilyName = Field("gaussian", description='gaussian: least squares. poisson: counts or rates (y >= 0), a local log-linear likelihood fit whose estimates and band limits stay positive; gaussian kernel, degree 0 or 1, analytic pointwise bands, automatic bandwidth by the local likelihood AIC (selector likelihood_aic); weights are case weights.')
 
     @model_validator(mode="after")
@@ -272,8 +272,6 @@ class _DataFields(_Strict):
             for i, v in enumerate(self.y):
                 if v is not None and v < 0:
                     raise FieldProblem("too_small", f"y[{i}] is {v:g}: family poisson takes counts or rates, which cannot be negative; send y >= 0 or use family gaussian", f"y[{i}]")
-            if self.robust:
-                raise FieldProblem("invalid", "robust is not available with family poisson; send robust false", "robust")
         selecting = getattr(self, "bandwidth", "auto") == "auto"
         if selecting and self.rule == "one_se" and self.selector not in SCORED_SELECTORS:
             raise FieldProblem("invalid", f"rule one_se needs a selector that scores candidates ({', '.join(SCORED_SELECTORS)}); {self.selector} computes its bandwidth from a formula", "rule")

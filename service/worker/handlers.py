@@ -294,11 +294,12 @@ def _anomalies(s: Any, req: SmoothRequest, x: Any, y: Any, weights: Any, limits:
     """Readings outside the prediction interval of a resistant fit (of ``s`` itself when it is one)."""
     level = req.anomalies.level if req.anomalies is not None else DEFAULT_ANOMALY_LEVEL
     resistant = s
-    if req.family == "gaussian" and not req.robust:
+    if not req.robust:
         resistant = fit(
             x, y, kernel=req.kernel, degree=req.degree, bandwidth=req.bandwidth, weights=weights, selector=req.selector,
             rule=req.rule, engine=req.engine, candidates=_candidates(req, limits),
             bandwidth_min=_length(req.bandwidth_min), bandwidth_max=_length(req.bandwidth_max), robust=True,
+            family=req.family,
         )
     found = find_anomalies(resistant, level, counted=None if weights is None else np.asarray(weights, dtype=float) > 0)
     return [

@@ -64,3 +64,29 @@ def test_counts_estimates_and_bands_stay_positive_and_cover() -> None:
         assert np.all(band.lower > 0) and np.all(s.predict(grid) > 0)
         hits.append(np.mean((band.lower <= lam(grid)) & (lam(grid) <= band.upper)))
     assert 0.88 <= float(np.mean(hits)) <= 0.99  # target 0.90-0.985, less the Monte Carlo error of 6 samples
+
+
+def test_resistant_count_fit_leaves_a_spike_out() -> None:
+    # reference: scipy.optimize maximising the local log-likelihood of the readings without the spike
+    rng = np.random.default_rng(8)
+    n = 80
+    x = np.sort(rng.uniform(0.0, 10.0, n))
+    y = rng.poisson(np.exp(1.5 + 0.15 * x)).astype(float)
+    y[40] += 60.0
+    h = 1.2
+    s = fit(x, y, bandwidth=h, family="poisson", robust=True)
+    assert s.robustness_weights is not None and s.robustness_weights[40] == 0.0
+    keep = np.ones(n, dtype=bool)
+    keep[s.robustness_weights == 0.0] = False
+    assert np.count_nonzero(~keep) <= 3  # the spike, and at most a few readings in the Poisson tails
+    kern = KERNELS["gaussian"]
+    t = float(x[40])
+    u = (x[keep] - t) / h
+    k = kern(u)
+
+    def negloglik(p: np.ndarray) -> float:
+        eta = p[0] + p[1] * u
+        return -float(np.sum(k * (y[keep] * eta - np.exp(eta))))
+
+    best = minimize(negloglik, np.array([np.log(y.mean()), 0.0]), method="BFGS", options={"gtol": 1e-10})
+    assert float(s.predict([t])[0]) == pytest.approx(float(np.exp(best.x[0])), rel=1e-5)

@@ -203,9 +203,8 @@ function buildRequest() {
     request.family = "poisson";
     request.kernel = "gaussian";
     request.degree = Math.min(request.degree, 1);
-  } else if ($("robust").checked) {
-    request.robust = true;
   }
+  if ($("robust").checked) request.robust = true;
   if ($("anomalies").checked) request.anomalies = { level: 0.999 };
   request.curve = { points: CURVE_POINTS };
   const method = $("band-method").value;
