@@ -89,3 +89,17 @@ def test_batch_and_bandwidth_take_the_new_fields(api: Harness) -> None:
     sel = _post(api, "/v1/bandwidth", {"x": X, "y": Y, "robust": True})
     BandwidthResponse.model_validate(sel)
     assert sel["bandwidth"]["value"] == estimators.fit(X, Y, robust=True).bandwidth
+
+
+def test_anomalies_on_a_time_axis_answer_date_times(api: Harness) -> None:
+    # the parcel depot with RFC 3339 x and a robust count fit; the anomalies' x are the readings' own times
+    depot = parcel_depot()
+    stamps = np.datetime_as_string(depot.x[:240].astype("int64").astype("datetime64[ms]"), unit="ms", timezone="UTC").tolist()
+    counts = depot.y[:240].tolist()
+    counts[100] = counts[100] + 400.0  # a burst the curve cannot explain
+    doc = _post(api, "/v1/smooth", {"x": stamps, "y": counts, "family": "poisson", "robust": True, "anomalies": {"level": 0.999}})
+    SmoothResponse.model_validate(doc)
+    flagged = {a["index"]: a for a in doc["anomalies"]}
+    assert 100 in flagged
+    assert flagged[100]["x"] == stamps[100]
+    assert doc["bandwidth"]["selector"] == "robust_likelihood_aic"
