@@ -45,8 +45,7 @@ from dataclasses import dataclass, replace
 from typing import Any
 
 import numpy as np
-from scipy.special import ndtri, xlogy
-from scipy.stats import poisson
+from scipy.special import ndtri, pdtr, pdtrik, xlogy
 
 from .bandwidth.cautions import edge_caution
 from .bandwidth.grid import candidate_grid
@@ -60,7 +59,7 @@ from .sums import MomentPlan
 from .uncertainty.arguments import check_level, check_points
 from .uncertainty.results import Bands
 
-__all__ = ["PoissonSmoother", "check_counts", "poisson_deviance", "poisson_fit", "resistant_poisson_fit"]
+__all__ = ["PoissonSmoother", "check_counts", "poisson_deviance", "poisson_fit", "poisson_quantile", "resistant_poisson_fit"]
 
 _NEWTON_STEPS = 30
 _STEP_TOLERANCE = 1e-10
@@ -78,6 +77,23 @@ def poisson_deviance(y: np.ndarray, mu: np.ndarray, w: np.ndarray | None = None)
     ma = np.asarray(mu, dtype=float)
     dev = 2.0 * (xlogy(ya, ya) - xlogy(ya, ma) - (ya - ma))
     out: np.ndarray = dev if w is None else np.asarray(w, dtype=float) * dev
+    return out
+
+
+def poisson_quantile(q: float, mu: np.ndarray) -> np.ndarray:
+    """The smallest count ``k`` with ``P(X <= k) >= q`` for ``X ~ Poisson(mu)``; NaN where ``mu`` is NaN.
+
+    From the inverse of the continuous Poisson distribution function (``pdtrik``), rounded up and
+    stepped down once where the count below already reaches ``q``.
+    """
+    m = np.asarray(mu, dtype=float)
+    with np.errstate(invalid="ignore", over="ignore"):
+        pos = np.where(m > 0, m, 1.0)
+        k = np.maximum(np.ceil(pdtrik(q, pos)), 0.0)
+        below = np.maximum(k - 1.0, 0.0)
+        k = np.where((k > 0) & (pdtr(below, pos) >= q), below, k)
+    out: np.ndarray = np.where(m > 0, k, np.where(m == 0, 0.0, np.nan))
+    out = np.where(np.isinf(m), np.inf, out)
     return out
 
 
@@ -409,9 +425,7 @@ class PoissonSmoother(LocalPolynomial):
         """
         lev = check_level(level)
         band = self.bands(points, level=lev)
-        lo = poisson.ppf((1.0 - lev) / 2.0, band.lower)
-        hi = poisson.ppf((1.0 + lev) / 2.0, band.upper)
-        return np.asarray(lo, dtype=float), np.asarray(hi, dtype=float)
+        return poisson_quantile((1.0 - lev) / 2.0, band.lower), poisson_quantile((1.0 + lev) / 2.0, band.upper)
 
 
 def poisson_fit(

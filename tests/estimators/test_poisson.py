@@ -8,7 +8,7 @@ from scipy.optimize import minimize
 from scipy.stats import poisson
 
 from estimators import KERNELS, fit
-from estimators.poisson import poisson_deviance
+from estimators.poisson import poisson_deviance, poisson_quantile
 
 
 def test_local_fit_maximises_the_weighted_local_log_likelihood() -> None:
@@ -90,3 +90,10 @@ def test_resistant_count_fit_leaves_a_spike_out() -> None:
 
     best = minimize(negloglik, np.array([np.log(y.mean()), 0.0]), method="BFGS", options={"gtol": 1e-10})
     assert float(s.predict([t])[0]) == pytest.approx(float(np.exp(best.x[0])), rel=1e-5)
+
+
+def test_count_quantile_matches_scipy() -> None:
+    # reference: scipy.stats.poisson.ppf (the smallest k with P(X <= k) >= q)
+    mu = np.array([0.0, 1e-6, 0.05, 0.5, 1.0, 2.5, 7.3, 37.0, 120.0, 1e4])
+    for q in (0.0005, 0.025, 0.5, 0.975, 0.9995):
+        np.testing.assert_array_equal(poisson_quantile(q, mu), poisson.ppf(q, mu))
