@@ -310,12 +310,12 @@ class PoissonSmoother(LocalPolynomial):
         out: np.ndarray = np.where(loc.degree >= 1, np.exp(loc.a) * loc.b / self.bandwidth, np.nan)
         return out
 
-    def _data_fit(self) -> tuple[np.ndarray, np.ndarray, _Local]:
-        return self.memo("data_fit", lambda: self._link(self.sample.x))
+    def _data_fit(self) -> _Local:
+        return self.memo("data_fit", lambda: self._local(self.sample.x))
 
     def fitted(self) -> np.ndarray:
         """Fitted intensities at the data points, in the caller's order."""
-        out: np.ndarray = np.exp(self._data_fit()[0])
+        out: np.ndarray = np.exp(self._data_fit().a)
         return out
 
     def residuals(self) -> np.ndarray:
@@ -325,7 +325,7 @@ class PoissonSmoother(LocalPolynomial):
 
     def leverages(self) -> np.ndarray:
         """Influence of each reading on its own fit, ``w_i K(0) exp(eta_i) [A^-1]_00`` (Loader 1999, Section 4.4)."""
-        _, _, loc = self._data_fit()
+        loc = self._data_fit()
         out: np.ndarray = self.sample.w * self._influence_factor(loc)
         return out
 
