@@ -50,6 +50,7 @@ from scipy.special import ndtri, pdtr, pdtrik, xlogy
 from .bandwidth.cautions import edge_caution
 from .bandwidth.grid import candidate_grid
 from .bandwidth.record import Selection
+from .bandwidth.rule_of_thumb import rule_of_thumb_bandwidth
 from .cautions import Caution
 from .kernels import Kernel
 from .local_poly import LocalPolynomial
@@ -506,7 +507,8 @@ def resistant_poisson_fit(
     Cleveland's bisquare iterations, then the readings they give no weight are left out), the
     weighting of the residuals that robust quasi-likelihood uses for counts (Cantoni & Ronchetti
     2001b). With ``bandwidth="auto"`` the AIC picks a pilot on all readings and, when readings are
-    left out, scores the candidates again on those that are kept (as for the gaussian family);
+    left out, scores the candidates again on those that are kept (as for the gaussian family, the
+first weights are found at the larger of the AIC's choice and the rule-of-thumb bandwidth);
     the selector is then reported as ``robust_likelihood_aic``.
 
     References
@@ -520,7 +522,15 @@ def resistant_poisson_fit(
         return lambda smp: PoissonSmoother(smp, kernel, degree, h, engine).pearson_residuals()
 
     h = pilot.bandwidth
-    rob = resistant_weights(sample, kernel, degree, h, engine, residuals=pearson_at(h))
+    start_h = h
+    if pilot.selection is not None:
+        # spikes can draw the AIC to a bandwidth that follows them: the weights start at the larger
+        # of its choice and the rule of thumb (a global fit, never that small), as for the gaussian family
+        rot, _ = rule_of_thumb_bandwidth(sample, kernel)
+        grid = pilot.selection.candidates
+        if math.isfinite(rot):
+            start_h = max(h, float(np.clip(rot, grid[0], grid[-1])))
+    rob = resistant_weights(sample, kernel, degree, start_h, engine, residuals=pearson_at(start_h))
     selection = pilot.selection
     if rob.n_rejected and isinstance(bandwidth, str):
         again = poisson_fit(sample.reweighted(rob.weights), kernel, degree, bandwidth, engine, candidates, bandwidth_min, bandwidth_max)
