@@ -97,3 +97,21 @@ def test_count_quantile_matches_scipy() -> None:
     mu = np.array([0.0, 1e-6, 0.05, 0.5, 1.0, 2.5, 7.3, 37.0, 120.0, 1e4])
     for q in (0.0005, 0.025, 0.5, 0.975, 0.9995):
         np.testing.assert_array_equal(poisson_quantile(q, mu), poisson.ppf(q, mu))
+
+
+def test_spikes_in_counts_are_flagged_by_the_resistant_count_fit() -> None:
+    # Monte Carlo with known intensity 0.5 .. 37; 5 % of the counts get round(5 sqrt(lambda) + 10) more
+    from estimators.anomalies import find_anomalies
+
+    def lam(t: np.ndarray) -> np.ndarray:
+        return 0.5 + 36.5 * (0.5 + 0.5 * np.sin(2.0 * np.pi * t)) ** 2
+
+    for seed in (28, 105):
+        rng = np.random.default_rng(seed)
+        x = rng.uniform(0.0, 1.0, 600)
+        y = rng.poisson(lam(x)).astype(float)
+        hit = rng.choice(600, 30, replace=False)
+        y[hit] += np.round(5.0 * np.sqrt(lam(x[hit])) + 10.0)
+        flagged = find_anomalies(fit(x, y, family="poisson", robust=True), 0.999).index
+        assert np.mean(np.isin(hit, flagged)) >= 0.9
+        assert np.count_nonzero(~np.isin(flagged, hit)) <= 6  # at most 1 % of the 570 clean counts
