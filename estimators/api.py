@@ -9,16 +9,21 @@ from __future__ import annotations
 import dataclasses
 import math
 from collections.abc import Sequence
-from typing import Any
+from dataclasses import replace
+from typing import Any, cast
 
 import numpy as np
 
 from .bandwidth import Selection, select_for_sample
 from .bandwidth.choices import check_degree
+from .bandwidth.rule_of_thumb import rule_of_thumb_bandwidth
 from .cautions import Caution
 from .kernels import Kernel, get_kernel
 from .local_poly import ENGINES, LocalPolynomial
+from .names import FAMILIES
 from .noise_choice import NoiseChoice, check_noise, choose_noise
+from .poisson import check_counts, poisson_fit, resistant_poisson_fit
+from .robust import RobustWeights, resistant_weights
 from .sample import SortedSample, validate_sample
 from .uncertainty import Bands, bands, prediction_interval, standard_error
 
@@ -49,10 +54,13 @@ class Smoother(LocalPolynomial):
         selection: Selection | None = None,
         cautions: Sequence[Caution] = (),
         noise_choice: NoiseChoice | None = None,
+        robustness: RobustWeights | None = None,
     ) -> None:
         super().__init__(sample, kernel, degree, bandwidth, engine, cautions)
         self.selection = selection
         self.noise_choice = noise_choice
+        #: robustness weights of a resistant fit (``robust=True``), else None
+        self.robustness = robustness
 
     # -- the noise model (see estimators.noise_choice) ---------------------
     @property
@@ -80,6 +88,16 @@ class Smoother(LocalPolynomial):
         ws = self.sample.ws
         reading_scale = self.residual_scale * math.sqrt(float(np.mean(1.0 / ws))) if ws.size else math.nan
         return self.memo("se_factor", lambda: choice.se_factor(reading_scale))
+
+    @property
+    def robust(self) -> bool:
+        """True for a resistant fit (``robust=True``)."""
+        return self.robustness is not None
+
+    @property
+    def robustness_weights(self) -> np.ndarray | None:
+        """Robustness weights in the caller's order (0 for a reading left out as an outlier), or None."""
+        return None if self.robustness is None else self.robustness.weights.copy()
 
     @property
     def warnings(self) -> list[Caution]:
@@ -153,6 +171,8 @@ def fit(
     bandwidth_min: float | None = None,
     bandwidth_max: float | None = None,
     noise: str = "auto",
+    robust: bool = False,
+    family: str = "gaussian",
 ) -> Smoother:
     """Fit a local polynomial kernel smoother.
 
@@ -181,6 +201,17 @@ def fit(
         prediction intervals use the marginal noise variance; a
         ``correlated_noise`` caution says so. ``independent`` keeps the
         independent-noise path. A fixed bandwidth is kept as given.
+    robust : bool
+        Outlier-resistant fit: Cleveland's (1979) bisquare robustness iterations, then the readings
+        they give no weight are left out (see :mod:`estimators.robust`). With ``bandwidth="auto"``
+        the criterion is computed on the readings that are kept (see :func:`_robust_fit`);
+        ``selection.selector`` is then prefixed ``robust_``.
+    family : {"gaussian", "poisson"}
+        ``"poisson"``: counts or rates (``y >= 0``), a local log-linear likelihood fit with
+        positive estimates and bands (see :mod:`estimators.poisson`; gaussian kernel, degree 0
+        or 1; ``bandwidth="auto"`` minimises the local likelihood AIC, selector
+        ``likelihood_aic``). With ``robust`` the resistant scheme runs on Pearson residuals
+        (:func:`estimators.poisson.resistant_poisson_fit`).
 
     Returns
     -------
@@ -209,9 +240,26 @@ def fit(
     if engine not in ENGINES:
         raise ValueError(f"unknown engine {engine!r}; choose one of {', '.join(ENGINES)}")
     requested = check_noise(noise)
+    if family not in FAMILIES:
+        raise ValueError(f"unknown family {family!r}; choose one of {', '.join(FAMILIES)}")
+    if family == "poisson":
+        if requested == "correlated":
+            raise ValueError("noise 'correlated' is not available with family 'poisson' (counts are taken as independent); send noise 'auto' or 'independent'")
+        check_counts(y)
     sample = validate_sample(x, y, weights)
-    selection = None
+    if family == "poisson":
+        if isinstance(bandwidth, str) and bandwidth != "auto":
+            raise ValueError(f"bandwidth must be a positive number or 'auto', got {bandwidth!r}")
+        bw = bandwidth if isinstance(bandwidth, str) else _check_bandwidth(bandwidth)
+        count_fit = resistant_poisson_fit if robust else poisson_fit
+        return cast(Smoother, count_fit(sample, kern, deg, bw, engine, candidates, bandwidth_min, bandwidth_max))
     choice = choose_noise(sample, requested)
+    if robust and isinstance(bandwidth, str):
+        return _robust_fit(
+            sample, kern, deg, bandwidth, engine,
+            dict(selector=selector, rule=rule, candidates=candidates, bandwidth_min=bandwidth_min, bandwidth_max=bandwidth_max, noise=choice),
+        )
+    selection = None
     if isinstance(bandwidth, str):
         if bandwidth != "auto":
             raise ValueError(f"bandwidth must be a positive number or 'auto', got {bandwidth!r}")
@@ -238,7 +286,57 @@ def fit(
         cautions.append(Caution("few_points", f"only {sample.n_used} points carry weight; the curve is poorly determined"))
     if selection is None:
         cautions.extend(choice.cautions())  # an automatic bandwidth's record carries them
+    if robust:
+        rob = resistant_weights(sample, kern, deg, h, engine)
+        return Smoother(sample.reweighted(rob.weights), kern, deg, h, engine, selection, cautions, choice, robustness=rob)
     return Smoother(sample, kern, deg, h, engine, selection, cautions, choice)
+
+
+def _robust_fit(
+    sample: SortedSample, kern: Kernel, deg: int, bandwidth: str, engine: str, options: dict[str, Any]
+) -> Smoother:
+    """The resistant fit of :func:`fit` with ``robust=True`` and ``bandwidth="auto"``.
+
+    A pilot bandwidth by the chosen criterion on all readings; the
+    robustness weights at the pilot; the criterion again on the readings those weights keep (a
+    robustness-weighted cross-validation: outlying readings enter neither the fit nor the score,
+    in the spirit of the robust criteria of Leung, Marriott & Wu 1993 and Cantoni & Ronchetti
+    2001); and the robustness weights at that bandwidth, starting from the first ones. The first
+    weights are found at the larger of the pilot and the rule-of-thumb bandwidth, so that a
+    cluster of outliers the criterion follows is still seen as one. When they leave no reading out
+    the second selection would score the very same data, so the pilot's choice stands.
+
+    References
+    ----------
+    Leung, D. H.-Y., Marriott, F. H. C. & Wu, E. K. H. (1993). Bandwidth selection in robust
+        smoothing. Journal of Nonparametric Statistics 2, 333-339.
+    Cantoni, E. & Ronchetti, E. (2001). Resistant selection of the smoothing parameter for
+        smoothing splines. Statistics and Computing 11, 141-146.
+    """
+    if bandwidth != "auto":
+        raise ValueError(f"bandwidth must be a positive number or 'auto', got {bandwidth!r}")
+    pilot = select_for_sample(sample, kern, deg, **options)
+    # a cluster of outliers can draw the criterion to a bandwidth that follows it: the robustness
+    # weights start at the larger of that choice and the rule of thumb (a global fit, never that small)
+    start_h = max(pilot.chosen, _rule_of_thumb(sample, kern, pilot))
+    rob = resistant_weights(sample, kern, deg, start_h, engine)
+    selection = pilot
+    if rob.n_rejected:
+        selection = select_for_sample(sample.reweighted(rob.weights), kern, deg, **options)
+        rob = resistant_weights(sample, kern, deg, selection.chosen, engine, start=rob.weights)
+    selection = replace(selection, selector=f"robust_{selection.selector}")
+    kept = sample.reweighted(rob.weights)
+    cautions = []
+    if kept.n_used < 2 * (deg + 2):
+        cautions.append(Caution("few_points", f"only {kept.n_used} points carry weight; the curve is poorly determined"))
+    choice = options.get("noise")
+    return Smoother(kept, kern, deg, selection.chosen, engine, selection, cautions, choice if isinstance(choice, NoiseChoice) else None, robustness=rob)
+
+
+def _rule_of_thumb(sample: SortedSample, kern: Kernel, pilot: Selection) -> float:
+    h, _ = rule_of_thumb_bandwidth(sample, kern)
+    lo, hi = float(pilot.candidates[0]), float(pilot.candidates[-1])
+    return float(np.clip(h, lo, hi)) if math.isfinite(h) else pilot.chosen
 
 
 def _check_bandwidth(bandwidth: Any) -> float:

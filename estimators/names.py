@@ -12,6 +12,7 @@ __all__ = [
     "BAND_METHODS",
     "CORRELATED_SELECTOR",
     "ENGINES",
+    "FAMILIES",
     "KERNEL_NAMES",
     "NOISE_CHOICES",
     "NOISE_KINDS",
@@ -35,3 +36,5 @@ NOISE_KINDS: tuple[str, ...] = ("independent", "correlated")
 """What was used: the noise model behind the bandwidth, the standard errors and the bands."""
 CORRELATED_SELECTOR: str = "modified_cv"
 """Name of the criterion that chooses the bandwidth when the noise is treated as correlated."""
+FAMILIES: tuple[str, ...] = ("gaussian", "poisson")
+"""Noise families: gaussian (least squares) and poisson (counts, local likelihood with a log link)."""

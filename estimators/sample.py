@@ -64,6 +64,28 @@ class SortedSample:
     def n_used(self) -> int:
         return int(self.xs.size)
 
+    def reweighted(self, factor: np.ndarray) -> SortedSample:
+        """The same readings with weights ``w * factor`` (``factor`` >= 0, caller's order), without sorting again.
+
+        Points whose new weight is 0 stop being sources, as in the constructor.
+        """
+        out = SortedSample.__new__(SortedSample)
+        out.x, out.y, out.w = self.x, self.y, self.w * factor
+        out.order = self.order
+        ws = out.w[self.order]
+        keep = ws > 0
+        xs, ys = self.x[self.order][keep], self.y[self.order][keep]
+        new = np.empty(xs.size, dtype=np.int64)
+        if xs.size:
+            new[0] = 1
+            new[1:] = xs[1:] != xs[:-1]
+        out.distinct_prefix = np.concatenate(([0], np.cumsum(new)))
+        out.xs, out.ys, out.ws = xs, ys, ws[keep]
+        out.y_centre = float((out.ws * ys).sum() / out.ws.sum())
+        out.yc = ys - out.y_centre
+        out._values = None
+        return out
+
     def values(self) -> np.ndarray:
         """Value columns ``[w, w (y - y_centre)]`` for the moment sums (computed once)."""
         if self._values is None:

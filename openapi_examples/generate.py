@@ -62,6 +62,8 @@ def build() -> list[dict[str, Any]]:
     cx, cy = _cold(12)
     dx, dy = _depot(168)
     tx, ty = _depot_times(340, 460)
+    wx, wy = _cold(1)
+    wx, wy = wx[:672], wy[:672]
     return [
         {
             "name": "fixed_bandwidth",
@@ -125,6 +127,22 @@ def build() -> list[dict[str, Any]]:
             "description": "x as RFC 3339 date-times, a bandwidth of three hours as an ISO 8601 duration (answered in ms and as a duration), two null counts left out "
             "(missing_values), the scanner outage found as a gap: the curve is null inside it and the prediction there is flagged in_gap (data_gap)." + NOTE,
             "request": {"x": tx, "y": ty, "bandwidth": "PT3H", "noise": "independent", "curve": {"points": 24}, "predict_at": ["2025-06-17T12:00:00Z", "2025-06-19T06:00:00+02:00"], "bands": {"method": "analytic"}},
+        },
+        {
+            "name": "robust_anomalies",
+            "path": "/v1/smooth",
+            "status": 200,
+            "summary": "Cold store, robust fit with anomalies",
+            "description": "The first week of 15-minute readings (672), defrost spikes included: a robust fit (spikes left out of the curve, the bandwidth criterion and the noise scale) and the readings outside its 99.9 % prediction interval, each with its position in the request.",
+            "request": {"x": wx, "y": wy, "robust": True, "anomalies": {"level": 0.999}, "curve": {"points": 20}},
+        },
+        {
+            "name": "counts",
+            "path": "/v1/smooth",
+            "status": 200,
+            "summary": "Parcel depot as counts",
+            "description": "One week of hourly parcel counts fitted as counts (family poisson): the estimate and the analytic 95 % band stay above zero, also in the quiet night hours; bandwidth two hours (7,200,000 ms).",
+            "request": {"x": dx, "y": dy, "family": "poisson", "bandwidth": 2 * HOUR_MS, "curve": {"points": 28}, "bands": {"method": "analytic"}},
         },
         {
             "name": "bandwidth_selection",

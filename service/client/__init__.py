@@ -76,6 +76,7 @@ from service.client.errors import (
 from service.client.fan_out import BatchLimits, FanOut, default_batch_series, run_tasks, run_threads
 from service.client.results import (
     _CAN_IGNORE_EXTRA,
+    AnomalyArrays,
     BandwidthResult,
     BatchResult,
     CurveArrays,
@@ -99,6 +100,7 @@ from service.contract.field_errors import RENAMED_FIELDS, field_errors
 from service.contract.models import BandwidthRequest, FieldErrorOut, SmoothRequest
 
 __all__ = [
+    "AnomalyArrays",
     "AsyncBandwiseClient",
     "BandwiseClient",
     "BandwiseError",
@@ -654,12 +656,14 @@ class BandwiseClient(_ClientBase):
             (``{"points": n}`` or ``{"at": [...]}``), ``predict_at`` (array),
             ``bands`` (``{"method", "level", "replicates", "seed",
             "simultaneous"}``; pointwise unless simultaneous),
-            ``include_fitted`` and ``noise`` ("auto", "independent" or
+            ``include_fitted``, ``noise`` ("auto", "independent" or
             "correlated": serial correlation of the noise in x order; the
             answer's ``diagnostics.noise`` and ``diagnostics.noise_autocorrelation``
-            say which path was used and the lag-1 estimate).  Unknown options and
-            values out of range are refused before sending (:class:`ValidationFailed`,
-            ``status`` None).
+            say which path was used and the lag-1 estimate), ``robust`` (bool),
+            ``family`` ("gaussian" or "poisson" for counts) and ``anomalies``
+            (``{"level": 0.999}``; see :meth:`SmoothResult.anomaly_arrays`).  Unknown
+            options and values out of range are refused before sending
+            (:class:`ValidationFailed`, ``status`` None).
 
         Returns
         -------

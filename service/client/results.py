@@ -75,6 +75,19 @@ class FittedArrays:
 
     estimate: np.ndarray
     residuals: np.ndarray
+    robustness_weights: np.ndarray | None = None  # robust fits: 0 for a reading left out as an outlier
+
+
+@dataclass(frozen=True)
+class AnomalyArrays:
+    """The ``anomalies`` list as columns; ``index`` is the position in the arrays sent."""
+
+    index: np.ndarray
+    x: np.ndarray
+    y: np.ndarray
+    estimate: np.ndarray
+    lower: np.ndarray
+    upper: np.ndarray
 
 
 @dataclass(frozen=True)
@@ -137,7 +150,7 @@ class FittedResult(FittedOut):
 
     def arrays(self) -> FittedArrays:
         """Fitted values and residuals as float arrays."""
-        return FittedArrays(to_numpy(self.estimate), to_numpy(self.residuals))
+        return FittedArrays(to_numpy(self.estimate), to_numpy(self.residuals), _optional(self.robustness_weights))
 
 
 class SelectionResult(BandwidthOut):
@@ -180,6 +193,18 @@ class SmoothResult(SmoothResponse, _Answer):
             interval_lower=column("interval_lower"),
             interval_upper=column("interval_upper"),
             extrapolated=np.array([row.extrapolated for row in rows], dtype=bool),
+        )
+
+    def anomaly_arrays(self) -> AnomalyArrays:
+        """The flagged readings as columns (empty when none were flagged or anomalies were not asked for)."""
+        rows = self.anomalies or []
+        return AnomalyArrays(
+            index=np.array([row.index for row in rows], dtype=np.int64),
+            x=axis_to_numpy(row.x for row in rows),
+            y=to_numpy(row.y for row in rows),
+            estimate=to_numpy(row.estimate for row in rows),
+            lower=to_numpy(row.lower for row in rows),
+            upper=to_numpy(row.upper for row in rows),
         )
 
     def warning_codes(self) -> list[str]:

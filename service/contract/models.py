@@ -34,6 +34,7 @@ from service.contract.names import (
     BAND_METHOD_NAMES,
     CORRELATED_SELECTOR_NAME,
     ENGINE_NAMES,
+    FAMILY_NAMES,
     KERNEL_NAMES,
     NOISE_NAMES,
     NOISE_USED_NAMES,
@@ -51,6 +52,7 @@ if TYPE_CHECKING:  # the checker sees plain strings; at run time each is a Liter
     EngineName = str
     NoiseName = str
     NoiseUsed = str
+    FamilyName = str
 else:
     KernelName = Literal[KERNEL_NAMES]
     SelectorName = Literal[SELECTOR_NAMES]
@@ -59,6 +61,7 @@ else:
     EngineName = Literal[ENGINE_NAMES]
     NoiseName = Literal[NOISE_NAMES]
     NoiseUsed = Literal[NOISE_USED_NAMES]
+    FamilyName = Literal[FAMILY_NAMES]
 
 Finite = Annotated[float, Field(allow_inf_nan=False)]
 NonNegativeFinite = Annotated[float, Field(allow_inf_nan=False, ge=0)]
@@ -235,6 +238,12 @@ class BandsSpec(_Strict):
         return self
 
 
+class AnomaliesSpec(_Strict):
+    """Which readings to flag as anomalies."""
+
+    level: Annotated[float, Field(gt=0, lt=1, allow_inf_nan=False)] = Field(0.999, description="Level of the prediction interval a reading must fall outside to be flagged, in (0, 1).")
+
+
 class _DataFields(_Strict):
     x: XValues = Field(..., description="Predictor values: finite numbers (epoch-millisecond timestamps work as they are), or RFC 3339 date-times with any offset (read as UTC epoch milliseconds); not both in one array. null marks a missing reading (see `missing`). At most BANDWISE_MAX_POINTS = 2,000,000.")
     y: list[Finite | None] = Field(..., description="Responses, same length as x; null marks a missing reading (see `missing`).")
@@ -259,6 +268,8 @@ class _DataFields(_Strict):
             "told apart at every bandwidth."
         ),
     )
+    robust: bool = Field(False, description="Outlier-resistant fit: bisquare robustness iterations (Cleveland 1979), then readings with a residual beyond 6 median absolute residuals are left out of the fit, the bandwidth criterion and the noise scale. The selector is then reported as robust_<selector>. With family poisson the same scheme runs on Pearson residuals.")
+    family: FamilyName = Field("gaussian", description='gaussian: least squares. poisson: counts or rates (y >= 0), a local log-linear likelihood fit whose estimates and band limits stay positive; gaussian kernel, degree 0 or 1, analytic pointwise bands, automatic bandwidth by the local likelihood AIC (selector likelihood_aic); weights are case weights.')
 
     @model_validator(mode="after")
     def _check_data(self, info: ValidationInfo) -> Any:
@@ -282,6 +293,10 @@ class _DataFields(_Strict):
         low, high = self.bandwidth_min, self.bandwidth_max
         if isinstance(low, float) and isinstance(high, float) and low >= high:
             raise FieldProblem("invalid", "bandwidth_max must be greater than bandwidth_min", "bandwidth_max")
+        if self.family == "poisson":
+            for i, v in enumerate(self.y):
+                if v is not None and v < 0:
+                    raise FieldProblem("too_small", f"y[{i}] is {v:g}: family poisson takes counts or rates, which cannot be negative; send y >= 0 or use family gaussian", f"y[{i}]")
         selecting = getattr(self, "bandwidth", "auto") == "auto"
         if selecting and self.rule == "one_se" and self.selector not in SCORED_SELECTORS:
             raise FieldProblem("invalid", f"rule one_se needs a selector that scores candidates ({', '.join(SCORED_SELECTORS)}); {self.selector} computes its bandwidth from a formula", "rule")
@@ -297,7 +312,8 @@ class SmoothRequest(_DataFields):
     max_gap: MaxGap = "auto"
     predict_at: Points | None = Field(None, description="New x values (numbers, or RFC 3339 date-times when x holds them) to predict at (at most BANDWISE_MAX_PREDICT_POINTS = 100,000). Values outside the data range are extrapolations and are flagged.")
     bands: BandsSpec | None = Field(None, description="Ask for uncertainty bands. They are pointwise unless simultaneous is true.")
-    include_fitted: bool = Field(False, description="Also return fitted values and residuals at the data points, in the order given.")
+    include_fitted: bool = Field(False, description="Also return fitted values and residuals at the data points, in the order given (and the robustness weights of a robust fit).")
+    anomalies: AnomaliesSpec | None = Field(None, description='Flag the readings outside the prediction interval at `level`, computed from an outlier-resistant fit (so a cluster of spikes cannot hide itself), e.g. {"level": 0.999}. On clean data about n (1 - level) readings are flagged.')
 
     @model_validator(mode="after")
     def _check_predict(self, info: ValidationInfo) -> SmoothRequest:
@@ -360,6 +376,18 @@ class FittedOut(_Out):
 
     estimate: list[float | None]
     residuals: list[float | None]
+    robustness_weights: list[float | None] | None = Field(None, description="With robust: 1 for a reading the fit uses, 0 for one left out as an outlier; null for a reading left out as missing.")
+
+
+class AnomalyOut(_Out):
+    """A reading outside the prediction interval of the outlier-resistant fit."""
+
+    index: int = Field(..., description="Position of the reading in the request's arrays.")
+    x: float | str = Field(..., description="The reading's x (an RFC 3339 UTC date-time for timestamp x).")
+    y: float
+    estimate: float | None = Field(..., description="The resistant fit's curve at x.")
+    lower: float | None = Field(..., description="Lower end of the prediction interval at anomalies.level.")
+    upper: float | None = Field(..., description="Upper end of the prediction interval at anomalies.level.")
 
 
 class PredictionOut(_Out):
@@ -399,6 +427,9 @@ class DiagnosticsOut(_Out):
     n_missing: int = Field(0, description="Readings left out because x, y or the weight was null (missing: drop).")
     noise: NoiseUsed = Field("independent", description="Noise model used for bandwidth, standard errors, bands and prediction intervals: independent or correlated (see the request's `noise`).")
     noise_autocorrelation: float | None = Field(None, description="Lag-1 autocorrelation of the noise in x order (difference-based estimate; readings sharing an x averaged); null with fewer than 8 distinct x values.")
+    family: str = Field("gaussian", description="The family fitted; present when it is not gaussian.")
+    robust: bool = Field(False, description="True for an outlier-resistant fit (present only then).")
+    n_outliers: int | None = Field(None, description="With robust: readings left out of the fit as outliers.")
 
 
 class GapOut(_Out):
@@ -423,6 +454,7 @@ class SmoothResponse(_Out):
     fitted: FittedOut | None = Field(None, description="Present when include_fitted was true.")
     predictions: list[PredictionOut] = Field(..., description="One entry per predict_at value, in order (empty when none were asked for).")
     gaps: list[GapOut] = Field(default_factory=list, description="Gaps in the data, in x order (empty when none); the curve is null strictly inside each.")
+    anomalies: list[AnomalyOut] | None = Field(None, description="With anomalies asked for: the flagged readings, in index order.")
     diagnostics: DiagnosticsOut
     warnings: list[WarningOut]
 

@@ -8,7 +8,7 @@ that validates requests does not load the numerics.
 
 from __future__ import annotations
 
-from estimators.names import BAND_METHODS, CORRELATED_SELECTOR, ENGINES, KERNEL_NAMES, NOISE_CHOICES, NOISE_KINDS, RULES, SELECTORS
+from estimators.names import BAND_METHODS, CORRELATED_SELECTOR, ENGINES, FAMILIES, KERNEL_NAMES, NOISE_CHOICES, NOISE_KINDS, RULES, SELECTORS
 from estimators.names import SCORED_SELECTORS as _SCORED_SELECTORS
 
 SELECTOR_NAMES: tuple[str, ...] = SELECTORS
@@ -19,11 +19,13 @@ BAND_METHOD_NAMES: tuple[str, ...] = BAND_METHODS
 NOISE_NAMES: tuple[str, ...] = NOISE_CHOICES  # the request's noise field
 NOISE_USED_NAMES: tuple[str, ...] = NOISE_KINDS  # diagnostics.noise: what was used
 CORRELATED_SELECTOR_NAME: str = CORRELATED_SELECTOR  # bandwidth.selector on the correlated-noise path
+FAMILY_NAMES: tuple[str, ...] = FAMILIES
 
 __all__ = [
     "BAND_METHOD_NAMES",
     "CORRELATED_SELECTOR_NAME",
     "ENGINE_NAMES",
+    "FAMILY_NAMES",
     "KERNEL_NAMES",
     "NOISE_NAMES",
     "NOISE_USED_NAMES",

@@ -23,5 +23,7 @@ WARNING_CODES: dict[str, str] = {
     "empty_window": "Some curve or prediction points have no data inside the kernel window; the estimate there is null. Use a larger bandwidth or the gaussian kernel.",
     "data_gap": "The data have gaps wider than max_gap (listed in `gaps`): the curve is null strictly inside them, and predictions there are flagged in_gap; an estimate inside a gap was never measured.",
     "missing_values": "Some readings had a null in x, y or weights and were left out (diagnostics.n_missing says how many).",
+    "outliers": "The robust fit left some readings out as outliers (diagnostics.n_outliers; fitted.robustness_weights marks them with include_fitted).",
+    "counts_bands": "For family poisson the bands are analytic and pointwise, computed on the log scale: another method or simultaneous bands were asked for and this band was given instead.",
     "extrapolation": "Some curve or prediction points lie outside the data range: the estimate there extends the local fit beyond the data and can be far off.",
 }

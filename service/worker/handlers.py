@@ -22,6 +22,7 @@ from pydantic import ValidationError
 
 import estimators
 from estimators import KERNELS, fit, select_bandwidth
+from estimators.anomalies import DEFAULT_ANOMALY_LEVEL, find_anomalies
 from estimators.demo import DEMOS
 from service.contract.arrow_layout import ARROW_STREAM
 from service.contract.errors import PROBLEM_MEDIA_TYPE, ProblemError, problem_bytes, problem_document
@@ -170,8 +171,14 @@ def _smooth_arrays(req: SmoothRequest, x: Any, y: Any, weights: Any, limits: dic
         bandwidth_min=_length(req.bandwidth_min),
         bandwidth_max=_length(req.bandwidth_max),
         noise=req.noise,
+        robust=req.robust,
+        family=req.family,
     )
     cautions: list[Any] = list(s.warnings)
+    rob = s.robustness_weights
+    if rob is not None and np.any(rob == 0):
+        count = int(np.count_nonzero(rob == 0))
+        cautions.append(_Caution("outliers", f"The robust fit left {count} reading{'s' if count > 1 else ''} out as {'outliers' if count > 1 else 'an outlier'}; fitted.robustness_weights marks {'them' if count > 1 else 'it'} (include_fitted)."))
 
     curve_spec = req.curve
     if curve_spec is not None and curve_spec.at is not None:
@@ -187,6 +194,9 @@ def _smooth_arrays(req: SmoothRequest, x: Any, y: Any, weights: Any, limits: dic
 
     p_lower = p_upper = p_ilow = p_ihigh = None
     band_info = None
+    if bands is not None and req.family == "poisson" and (bands.method != "analytic" or bands.simultaneous):
+        cautions.append(_Caution("counts_bands", "Counts get analytic pointwise bands on the log scale; these were given in place of the method asked for."))
+        bands = bands.model_copy(update={"method": "analytic", "simultaneous": False})
     if bands is not None:
         if px is not None and not bands.simultaneous:
             # Pointwise bands at curve and prediction points from one set of replicates.
@@ -256,6 +266,10 @@ def _smooth_arrays(req: SmoothRequest, x: Any, y: Any, weights: Any, limits: dic
             "estimate": np.ascontiguousarray(s.fitted(), dtype=float),
             "residuals": np.ascontiguousarray(s.residuals(), dtype=float),
         }
+        if rob is not None:
+            body["fitted"]["robustness_weights"] = np.ascontiguousarray(rob, dtype=float)
+    if req.anomalies is not None:
+        body["anomalies"] = _anomalies(s, req, x, y, weights, limits)
     body["predictions"] = predictions
     body["diagnostics"] = {
         "n": int(s.n),
@@ -271,8 +285,34 @@ def _smooth_arrays(req: SmoothRequest, x: Any, y: Any, weights: Any, limits: dic
         "noise": s.noise,
         "noise_autocorrelation": _float_or_none(s.noise_autocorrelation),
     }
+    if req.family != "gaussian":
+        body["diagnostics"]["family"] = req.family
+    if rob is not None:
+        body["diagnostics"]["robust"] = True
+        body["diagnostics"]["n_outliers"] = int(np.count_nonzero(rob == 0))
     body["warnings"] = _cautions(cautions)
     return body
+
+
+def _anomalies(s: Any, req: SmoothRequest, x: Any, y: Any, weights: Any, limits: dict[str, int]) -> list[dict[str, Any]]:
+    """Readings outside the prediction interval of a resistant fit (of ``s`` itself when it is one)."""
+    level = req.anomalies.level if req.anomalies is not None else DEFAULT_ANOMALY_LEVEL
+    resistant = s
+    if not req.robust:
+        resistant = fit(
+            x, y, kernel=req.kernel, degree=req.degree, bandwidth=req.bandwidth, weights=weights, selector=req.selector,
+            rule=req.rule, engine=req.engine, candidates=_candidates(req, limits),
+            bandwidth_min=_length(req.bandwidth_min), bandwidth_max=_length(req.bandwidth_max), robust=True,
+            family=req.family,
+        )
+    found = find_anomalies(resistant, level, counted=None if weights is None else np.asarray(weights, dtype=float) > 0)
+    return [
+        {"index": int(i), "x": float(a), "y": float(b), "estimate": _float_or_none(e), "lower": _float_or_none(lo), "upper": _float_or_none(hi)}
+        for i, a, b, e, lo, hi in zip(
+            found.index.tolist(), found.x.tolist(), found.y.tolist(), found.estimate.tolist(), found.lower.tolist(), found.upper.tolist(),
+            strict=True,
+        )
+    ]
 
 
 def _grid(lo: float, hi: float, count: int) -> np.ndarray:
@@ -338,6 +378,17 @@ def select_only(req: BandwidthRequest, limits: dict[str, int], arrays: arrow_cod
     req = prep.request
     try:
         with np.errstate(all="ignore"):
+            if req.robust or req.family != "gaussian":
+                fitted = fit(
+                    prep.x, prep.y, kernel=req.kernel, degree=req.degree, weights=prep.weights, selector=req.selector,
+                    rule=req.rule, candidates=_candidates(req, limits), bandwidth_min=_length(req.bandwidth_min),
+                    bandwidth_max=_length(req.bandwidth_max), robust=req.robust, family=req.family, noise=req.noise,
+                )
+                chosen = fitted.selection
+                assert chosen is not None  # bandwidth "auto" always leaves a selection record
+                diagnostics = {"noise": fitted.noise, "noise_autocorrelation": _float_or_none(fitted.noise_autocorrelation)}
+                body = {"bandwidth": _bandwidth_object(chosen.chosen, chosen), "diagnostics": diagnostics, "warnings": _cautions(chosen.warnings)}
+                return time_axis.finish_bandwidth(body, prep)
             sel = select_bandwidth(
                 prep.x,
                 prep.y,

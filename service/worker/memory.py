@@ -7,6 +7,9 @@ the reference machine, rounded up by about a quarter; see
 - its body, held while it is parsed: 1 byte per byte;
 - each data point: 300 bytes (parsed values, sorted copies, moments and fits
   at the data);
+- a robust fit or anomaly flags: 100 bytes more per data point (robustness
+  weights, reweighted copies and the resistant refit; measured at about a
+  quarter above a plain fit);
 - each curve or prediction point: 1,000 bytes (parsed values, local fits,
   estimates, band ends and the encoded answer);
 - bootstrap draws (bootstrap bands, or simultaneous analytic bands): a fixed
@@ -27,6 +30,7 @@ MIB = 1024 * 1024
 BYTES_PER_BODY_BYTE = 1
 BYTES_PER_DATA_POINT = 300
 BYTES_PER_OUTPUT_POINT = 1_000
+BYTES_PER_RESISTANT_POINT = 100
 DRAW_BYTES = 160 * MIB
 
 
@@ -47,7 +51,8 @@ def smooth_bytes(req: SmoothRequest, body_bytes: int, default_curve_points: int)
     outputs += len(req.predict_at or ())
     bands = req.bands
     draws = bands is not None and (bands.method != "analytic" or bool(bands.simultaneous))
-    return request_bytes(body_bytes, len(req.x), outputs, draws)
+    resistant = BYTES_PER_RESISTANT_POINT * len(req.x) if (req.robust or req.anomalies is not None) else 0
+    return request_bytes(body_bytes, len(req.x), outputs, draws) + resistant
 
 
 def check_budget(needed: int, limits: dict[str, int]) -> None:

@@ -236,10 +236,19 @@ def finish(body: dict[str, Any], prep: Prepared) -> dict[str, Any]:
         cautions.append(_Caution("missing_values", f"{prep.n_missing} of {prep.n_given} readings had a null in x, y or weights and were left out."))
         fitted = body.get("fitted")
         if fitted is not None and prep.kept is not None:
-            for name in ("estimate", "residuals"):
+            for name in ("estimate", "residuals", "robustness_weights"):
+                if name not in fitted:
+                    continue
                 full = np.full(prep.n_given, np.nan)
                 full[prep.kept] = fitted[name]
                 fitted[name] = full
+    anomalies = body.get("anomalies")
+    if anomalies and prep.kept is not None:
+        for item in anomalies:
+            item["index"] = int(prep.kept[item["index"]])
+    if anomalies and prep.timestamps:
+        for item, text in zip(anomalies, format_timestamps([item["x"] for item in anomalies]), strict=True):
+            item["x"] = text
     body["diagnostics"]["n"] = prep.n_given
     body["diagnostics"]["n_missing"] = prep.n_missing
 

@@ -48,6 +48,7 @@ MODULES: list[tuple[str, list[str], list[str]]] = [
     ("study_coverage", [], ["--replications", "20"]),
     ("bench_correlated", [], ["--n", "1e5", "--repeat", "2"]),
     ("study_correlated", [], ["--replications", "2", "--sizes", "300"]),
+    ("study_robust", [], ["--replications", "10", "--speed-n", "20000"]),
 ]
 
 #: where a full run writes its report, relative to the repository root

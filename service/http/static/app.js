@@ -199,11 +199,21 @@ function buildRequest() {
   } else {
     request.bandwidth = Number($("bw-value").value);
   }
+  if ($("counts").checked) {
+    // counts are fitted by local likelihood with the gaussian kernel, degree 0 or 1
+    request.family = "poisson";
+    request.kernel = "gaussian";
+    request.degree = Math.min(request.degree, 1);
+  }
+  if ($("robust").checked) request.robust = true;
+  if ($("anomalies").checked) request.anomalies = { level: 0.999 };
   request.curve = { points: CURVE_POINTS };
   const method = $("band-method").value;
   if (method !== "none") {
     request.bands = { method, level: Number($("band-level").value), simultaneous: $("band-simultaneous").checked };
-    if (method !== "analytic") {
+    if (request.family === "poisson") {
+      request.bands = { method: "analytic", level: request.bands.level };  // counts: analytic pointwise bands
+    } else if (method !== "analytic") {
       request.bands.replicates = Number($("band-replicates").value);
       request.bands.seed = 0;
     }
@@ -337,6 +347,7 @@ function render(d, request, response) {
     data: d,
     curve,
     predictions,
+    anomalies: (response.anomalies || []).map((a) => ({ x: typeof a.x === "string" ? Date.parse(a.x) : a.x, y: a.y })),
     meta: { xLabel: d.xLabel, yLabel: d.yLabel, xUnit: d.xUnit, yUnit: d.yUnit, xIsTime: d.xIsTime },
   });
   const bw = response.bandwidth || {};
@@ -354,6 +365,10 @@ function render(d, request, response) {
   renderSummary(request, response, chart, selectorName);
   renderScoreSummary(bw, selectorName);
   renderCautions(request);
+  if (response.anomalies) {
+    const count = response.anomalies.length;
+    $("summary").append(` ${count === 0 ? "No reading is" : count === 1 ? "One reading is" : `${count} readings are`} marked as ${count === 1 ? "an anomaly" : "anomalies"} (outside the 99.9 % prediction interval of a robust fit).`);
+  }
   $("legend-band").textContent = request.bands
     ? `${Math.round(request.bands.level * 100)} % ${request.bands.simultaneous ? "simultaneous" : "pointwise"} band (${BAND_NAMES[request.bands.method]})`
     : "band (none requested)";
@@ -553,6 +568,7 @@ async function chooseDataset(name) {
     }
     return;
   }
+  $("counts").checked = name === "parcel_depot";  // the depot logs parcels per hour: counts
   setBusy(true);
   try {
     setData(await loadDemo(name));
@@ -597,7 +613,7 @@ function applyPaste() {
 function wire() {
   $("dataset").addEventListener("change", (e) => chooseDataset(e.target.value));
   $("paste-apply").addEventListener("click", applyPaste);
-  for (const id of ["kernel", "degree", "noise", "selector", "rule", "bw-min", "bw-max", "band-level", "band-simultaneous", "band-replicates"]) {
+  for (const id of ["kernel", "degree", "noise", "selector", "rule", "bw-min", "bw-max", "band-level", "band-simultaneous", "band-replicates", "robust", "counts", "anomalies"]) {
     $(id).addEventListener("change", scheduleRefit);
   }
   $("band-method").addEventListener("change", () => {

@@ -160,7 +160,7 @@ function drawPrediction(g, p, sx, sy) {
  * Draw data, estimate, band and predictions into `svg`.
  * @returns {{clipped: boolean, yDomain: number[], xDomain: number[]}}
  */
-export function drawMainChart(svg, { data, curve, predictions, meta }) {
+export function drawMainChart(svg, { data, curve, predictions, anomalies, meta }) {
   clear(svg);
   const box = plotBox(svg, { left: 74, right: 18, top: 14, bottom: 52 });
   predictions = predictions || [];
@@ -206,6 +206,10 @@ export function drawMainChart(svg, { data, curve, predictions, meta }) {
     "stroke-width": size, "stroke-opacity": opacity,
   }, plot);
   el("path", { id: "estimate-path", class: "ln-estimate", d: linePath(curve.x, curve.estimate, sx, sy) }, plot);
+  const ag = el("g", { id: "anomalies", "data-count": (anomalies || []).length }, plot);
+  for (const a of anomalies || []) {
+    if (ok(a.x) && ok(a.y)) el("circle", { cx: r2(sx(a.x)), cy: r2(sy(a.y)), r: 6, class: "pt-anomaly" }, ag);
+  }
   const pg = el("g", { id: "predictions" }, plot);
   for (const p of predictions) drawPrediction(pg, p, sx, sy);
   // Labels and off-scale arrows sit outside the clipped area so they are never cut off.
