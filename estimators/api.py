@@ -253,12 +253,12 @@ def fit(
         bw = bandwidth if isinstance(bandwidth, str) else _check_bandwidth(bandwidth)
         count_fit = resistant_poisson_fit if robust else poisson_fit
         return cast(Smoother, count_fit(sample, kern, deg, bw, engine, candidates, bandwidth_min, bandwidth_max))
-    choice = choose_noise(sample, requested)
     if robust and isinstance(bandwidth, str):
         return _robust_fit(
-            sample, kern, deg, bandwidth, engine,
-            dict(selector=selector, rule=rule, candidates=candidates, bandwidth_min=bandwidth_min, bandwidth_max=bandwidth_max, noise=choice),
+            sample, kern, deg, bandwidth, engine, requested,
+            dict(selector=selector, rule=rule, candidates=candidates, bandwidth_min=bandwidth_min, bandwidth_max=bandwidth_max),
         )
+    choice = choose_noise(sample, requested)
     selection = None
     if isinstance(bandwidth, str):
         if bandwidth != "auto":
@@ -281,19 +281,22 @@ def fit(
             reach = (sample.xs[-1] - sample.xs[0]) / h
         if not math.isfinite(float(reach)) or h > 1e300:
             raise ValueError(f"bandwidth {h!r} is out of proportion to the x range; choose one nearer the data spacing")
+    rob = None
+    if robust:
+        # the noise is diagnosed on the readings the resistant fit keeps: spikes are not noise of the curve
+        rob = resistant_weights(sample, kern, deg, h, engine)
+        sample = sample.reweighted(rob.weights)
+        choice = choose_noise(sample, requested)
     cautions = []
     if sample.n_used < 2 * (deg + 2):
         cautions.append(Caution("few_points", f"only {sample.n_used} points carry weight; the curve is poorly determined"))
     if selection is None:
         cautions.extend(choice.cautions())  # an automatic bandwidth's record carries them
-    if robust:
-        rob = resistant_weights(sample, kern, deg, h, engine)
-        return Smoother(sample.reweighted(rob.weights), kern, deg, h, engine, selection, cautions, choice, robustness=rob)
-    return Smoother(sample, kern, deg, h, engine, selection, cautions, choice)
+    return Smoother(sample, kern, deg, h, engine, selection, cautions, choice, robustness=rob)
 
 
 def _robust_fit(
-    sample: SortedSample, kern: Kernel, deg: int, bandwidth: str, engine: str, options: dict[str, Any]
+    sample: SortedSample, kern: Kernel, deg: int, bandwidth: str, engine: str, noise: str, options: dict[str, Any]
 ) -> Smoother:
     """The resistant fit of :func:`fit` with ``robust=True`` and ``bandwidth="auto"``.
 
@@ -315,22 +318,25 @@ def _robust_fit(
     """
     if bandwidth != "auto":
         raise ValueError(f"bandwidth must be a positive number or 'auto', got {bandwidth!r}")
-    pilot = select_for_sample(sample, kern, deg, **options)
+    choice = choose_noise(sample, noise)
+    pilot = select_for_sample(sample, kern, deg, noise=choice, **options)
     # a cluster of outliers can draw the criterion to a bandwidth that follows it: the robustness
     # weights start at the larger of that choice and the rule of thumb (a global fit, never that small)
     start_h = max(pilot.chosen, _rule_of_thumb(sample, kern, pilot))
     rob = resistant_weights(sample, kern, deg, start_h, engine)
     selection = pilot
     if rob.n_rejected:
-        selection = select_for_sample(sample.reweighted(rob.weights), kern, deg, **options)
+        # the noise is diagnosed again on the readings kept: spikes are not noise of the curve
+        first_kept = sample.reweighted(rob.weights)
+        choice = choose_noise(first_kept, noise)
+        selection = select_for_sample(first_kept, kern, deg, noise=choice, **options)
         rob = resistant_weights(sample, kern, deg, selection.chosen, engine, start=rob.weights)
     selection = replace(selection, selector=f"robust_{selection.selector}")
     kept = sample.reweighted(rob.weights)
     cautions = []
     if kept.n_used < 2 * (deg + 2):
         cautions.append(Caution("few_points", f"only {kept.n_used} points carry weight; the curve is poorly determined"))
-    choice = options.get("noise")
-    return Smoother(kept, kern, deg, selection.chosen, engine, selection, cautions, choice if isinstance(choice, NoiseChoice) else None, robustness=rob)
+    return Smoother(kept, kern, deg, selection.chosen, engine, selection, cautions, choice, robustness=rob)
 
 
 def _rule_of_thumb(sample: SortedSample, kern: Kernel, pilot: Selection) -> float:

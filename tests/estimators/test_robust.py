@@ -116,3 +116,30 @@ def test_anomaly_flags_on_spikes_and_on_clean_readings() -> None:
         yc = _truth(xc) + rng.normal(size=1000)
         flags += len(find_anomalies(fit(xc, yc, robust=True), 0.99))
     assert 30 - 3.5 * 5.4 <= flags <= 30 + 3.5 * 5.4
+
+
+def test_robust_fit_on_correlated_noise_keeps_its_spikes_out_and_widens_its_bands() -> None:
+    # AR(1) noise with phi = 0.6 (stationary, unit marginal variance; Box & Jenkins 1976, Section 3.2.4) plus 5 %
+    # one-sided spikes: the resistant fit leaves the spikes out, and with noise "correlated" its standard errors are
+    # those of the same fit on independent noise times the long-run factor sqrt((1 + phi) / (1 - phi)) = 2 in
+    # closed form (within the estimation error of phi and of the marginal variance).
+    rng = np.random.default_rng(12)
+    n, phi = 1500, 0.6
+    e = np.empty(n)
+    e[0] = rng.normal()
+    for i in range(1, n):
+        e[i] = phi * e[i - 1] + np.sqrt(1.0 - phi**2) * rng.normal()
+    x = np.linspace(0.0, 1.0, n)
+    y = _truth(x) + e
+    spikes = rng.choice(n, n // 20, replace=False)
+    y[spikes] += rng.uniform(8.0, 15.0, spikes.size)
+    correlated = fit(x, y, robust=True, noise="correlated", bandwidth=0.05)
+    independent = fit(x, y, robust=True, noise="independent", bandwidth=0.05)
+    assert correlated.noise == "correlated" and independent.noise == "independent"
+    weights = correlated.robustness_weights
+    assert weights is not None and np.all(weights[spikes] == 0.0)
+    t = np.linspace(0.2, 0.8, 7)
+    ratio = correlated.standard_error(t) / independent.standard_error(t)
+    assert np.all(ratio > 1.5) and np.all(ratio < 2.6)
+    auto = fit(x, y, robust=True)  # automatic bandwidth, noise found correlated by the test
+    assert auto.noise == "correlated" and auto.selection is not None and auto.selection.selector.startswith("robust_")
