@@ -7,6 +7,8 @@ The layout is documented in ``docs/api.md`` ("Apache Arrow bodies and answers").
 
 from __future__ import annotations
 
+from service.contract.accept import names_media_type
+
 ARROW_STREAM = "application/vnd.apache.arrow.stream"
 """The IANA-registered media type of an Arrow IPC stream."""
 
@@ -58,16 +60,4 @@ def is_arrow(content_type: str | None) -> bool:
 
 def accepts_arrow(accept: str | None) -> bool:
     """Whether an Accept header asks for an Arrow answer (and does not refuse it with ``q=0``)."""
-    for item in (accept or "").split(","):
-        media, _, params = item.partition(";")
-        if media.strip().lower() != ARROW_STREAM:
-            continue
-        for param in params.split(";"):
-            key, _, value = param.partition("=")
-            if key.strip().lower() == "q":
-                try:
-                    return float(value.strip()) > 0
-                except ValueError:
-                    return False
-        return True
-    return False
+    return names_media_type(accept, ARROW_STREAM)

@@ -29,6 +29,7 @@ import orjson
 from starlette.background import BackgroundTask
 from starlette.responses import StreamingResponse
 
+from service.contract.accept import names_media_type
 from service.contract.errors import problem_document
 from service.contract.jobs import Job, Outcome
 from service.http.batching import BatchPlan, BatchRunner
@@ -47,20 +48,7 @@ def accepts_ndjson(header: str | None) -> bool:
     Wildcards (``*/*``, ``application/*``) do not ask for the stream: a client
     has to name it.
     """
-    for item in (header or "").split(","):
-        media, _, params = item.partition(";")
-        if media.strip().lower() != NDJSON_MEDIA_TYPE:
-            continue
-        weight = 1.0
-        for param in params.split(";"):
-            key, _, value = param.partition("=")
-            if key.strip().lower() == "q":
-                try:
-                    weight = float(value.strip())
-                except ValueError:
-                    weight = 0.0
-        return weight > 0.0
-    return False
+    return names_media_type(header, NDJSON_MEDIA_TYPE)
 
 
 def _line(index: int, slot: dict[str, Any]) -> bytes:

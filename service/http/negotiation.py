@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from service.contract.accept import quality
+
 
 def accepts_gzip(header: str) -> bool:
     """True when ``Accept-Encoding`` allows gzip: ``gzip`` (or ``x-gzip``) with a weight above 0, or ``*`` above 0 when gzip is not named.
@@ -16,14 +18,7 @@ def accepts_gzip(header: str) -> bool:
         coding = coding.strip().lower()
         if not coding:
             continue
-        weight = 1.0
-        for param in params.split(";"):
-            key, _, value = param.partition("=")
-            if key.strip().lower() == "q":
-                try:
-                    weight = float(value.strip())
-                except ValueError:
-                    weight = 0.0
+        weight = quality(params)
         if coding in ("gzip", "x-gzip"):
             named = weight if named is None else max(named, weight)
         elif coding == "*":
