@@ -23,14 +23,14 @@ from .local_poly import ENGINES, LocalPolynomial
 from .names import FAMILIES
 from .noise_choice import NoiseChoice, check_noise, choose_noise
 from .poisson import check_counts, poisson_fit, resistant_poisson_fit
-from .robust import RobustWeights, resistant_weights
+from .robust import ResistantFit, RobustWeights, resistant_weights
 from .sample import SortedSample, validate_sample
 from .uncertainty import Bands, bands, prediction_interval, standard_error
 
 __all__ = ["Smoother", "fit"]
 
 
-class Smoother(LocalPolynomial):
+class Smoother(ResistantFit, LocalPolynomial):
     """A fitted kernel smoother; see :func:`fit`.
 
     The local fits come from :class:`estimators.local_poly.LocalPolynomial`;
@@ -88,16 +88,6 @@ class Smoother(LocalPolynomial):
         ws = self.sample.ws
         reading_scale = self.residual_scale * math.sqrt(float(np.mean(1.0 / ws))) if ws.size else math.nan
         return self.memo("se_factor", lambda: choice.se_factor(reading_scale))
-
-    @property
-    def robust(self) -> bool:
-        """True for a resistant fit (``robust=True``)."""
-        return self.robustness is not None
-
-    @property
-    def robustness_weights(self) -> np.ndarray | None:
-        """Robustness weights in the caller's order (0 for a reading left out as an outlier), or None."""
-        return None if self.robustness is None else self.robustness.weights.copy()
 
     @property
     def warnings(self) -> list[Caution]:

@@ -54,7 +54,7 @@ from .bandwidth.rule_of_thumb import rule_of_thumb_bandwidth
 from .cautions import Caution
 from .kernels import Kernel
 from .local_poly import LocalPolynomial
-from .robust import RobustWeights, resistant_weights
+from .robust import ResistantFit, RobustWeights, resistant_weights
 from .sample import SortedSample
 from .sums import MomentPlan
 from .uncertainty.arguments import check_level, check_points
@@ -137,7 +137,7 @@ def _shifted(plan: MomentPlan, t: np.ndarray, shift: np.ndarray, h: float, order
     return out
 
 
-class PoissonSmoother(LocalPolynomial):
+class PoissonSmoother(ResistantFit, LocalPolynomial):
     """A local log-linear Poisson fit; see :func:`poisson_fit` and the module notes."""
 
     family = "poisson"
@@ -164,11 +164,6 @@ class PoissonSmoother(LocalPolynomial):
         self._y_mean = float(np.sum(sample.ws * sample.ys) / np.sum(sample.ws))
 
     @property
-    def robust(self) -> bool:
-        """True for a resistant fit."""
-        return self.robustness is not None
-
-    @property
     def noise(self) -> str:
         """Counts are taken as independent: ``"independent"``."""
         return "independent"
@@ -177,11 +172,6 @@ class PoissonSmoother(LocalPolynomial):
     def noise_autocorrelation(self) -> float:
         """Not estimated for counts: NaN."""
         return math.nan
-
-    @property
-    def robustness_weights(self) -> np.ndarray | None:
-        """Robustness weights in the caller's order (0 for a reading left out as an outlier), or None."""
-        return None if self.robustness is None else self.robustness.weights.copy()
 
     def pearson_residuals(self) -> np.ndarray:
         """``(y - mu) / sqrt(mu)`` at the data (caller's order; McCullagh & Nelder 1989, Section 2.4.2)."""

@@ -39,7 +39,7 @@ from .kernels import Kernel
 from .local_poly import LocalPolynomial
 from .sample import SortedSample
 
-__all__ = ["ROBUSTNESS_ITERATIONS", "SCALE_MULTIPLE", "RobustWeights", "bisquare", "bisquare_weights", "resistant_weights"]
+__all__ = ["ROBUSTNESS_ITERATIONS", "SCALE_MULTIPLE", "ResistantFit", "RobustWeights", "bisquare", "bisquare_weights", "resistant_weights"]
 
 #: residuals are scaled by this multiple of their median absolute value (Cleveland 1979, Section 2)
 SCALE_MULTIPLE = 6.0
@@ -138,6 +138,23 @@ class RobustWeights:
     @property
     def n_rejected(self) -> int:
         return int(np.count_nonzero(self.weights == 0.0))
+
+
+class ResistantFit:
+    """What a fitted smoother says of its robustness weights (mixed into the gaussian and the count smoothers)."""
+
+    #: robustness weights of a resistant fit (``robust=True``), else None
+    robustness: RobustWeights | None = None
+
+    @property
+    def robust(self) -> bool:
+        """True for a resistant fit (``robust=True``)."""
+        return self.robustness is not None
+
+    @property
+    def robustness_weights(self) -> np.ndarray | None:
+        """Robustness weights in the caller's order (0 for a reading left out as an outlier), or None."""
+        return None if self.robustness is None else self.robustness.weights.copy()
 
 
 def resistant_weights(

@@ -42,6 +42,7 @@ from concurrent.futures import ProcessPoolExecutor
 import numpy as np
 
 from estimators import fit
+from tests.estimators.noise_series import ar1
 
 from .machine import describe
 
@@ -56,17 +57,6 @@ SD = 0.3
 FINE = 40
 POINTS = np.linspace(0.1, 0.9, 33)
 LEVEL = 0.95
-
-
-def ar1(rng: np.random.Generator, n: int, phi: float) -> np.ndarray:
-    """Stationary AR(1) with unit marginal variance."""
-    eps = rng.standard_normal(n)
-    e = np.empty(n)
-    e[0] = eps[0]
-    s = math.sqrt(1.0 - phi * phi)
-    for i in range(1, n):
-        e[i] = phi * e[i - 1] + s * eps[i]
-    return e
 
 
 def data(truth: str, n: int, phi: float, design: str, seed: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:

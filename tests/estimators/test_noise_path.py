@@ -27,21 +27,7 @@ from estimators.kernels import KERNELS
 from estimators.serial import exclusion_lag
 
 from .dense_reference import dense_local_fit
-
-
-def ar1(rng: np.random.Generator, n: int, phi: float) -> np.ndarray:
-    """Stationary AR(1) with unit marginal variance (started from its stationary law)."""
-    eps = rng.standard_normal(n)
-    e = np.empty(n)
-    e[0] = eps[0]
-    s = math.sqrt(1.0 - phi * phi)
-    for i in range(1, n):
-        e[i] = phi * e[i - 1] + s * eps[i]
-    return e
-
-
-def trend(x: np.ndarray) -> np.ndarray:
-    return np.sin(2.0 * math.pi * x) + 0.5 * x
+from .noise_series import ar1, trend
 
 
 def test_noise_is_validated_with_the_allowed_values() -> None:

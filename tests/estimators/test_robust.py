@@ -10,6 +10,7 @@ from estimators.anomalies import find_anomalies
 from estimators.robust import SCALE_MULTIPLE, bisquare, bisquare_weights
 
 from .dense_reference import dense_local_fit
+from .noise_series import ar1
 
 
 def _truth(t: np.ndarray) -> np.ndarray:
@@ -125,10 +126,7 @@ def test_robust_fit_on_correlated_noise_keeps_its_spikes_out_and_widens_its_band
     # closed form (within the estimation error of phi and of the marginal variance).
     rng = np.random.default_rng(12)
     n, phi = 1500, 0.6
-    e = np.empty(n)
-    e[0] = rng.normal()
-    for i in range(1, n):
-        e[i] = phi * e[i - 1] + np.sqrt(1.0 - phi**2) * rng.normal()
+    e = ar1(rng, n, phi)
     x = np.linspace(0.0, 1.0, n)
     y = _truth(x) + e
     spikes = rng.choice(n, n // 20, replace=False)

@@ -33,21 +33,7 @@ from estimators.serial import (
 from estimators.sums import GAUSSIAN_CUTOFF
 
 from .dense_reference import dense_local_fit
-
-
-def ar1(rng: np.random.Generator, n: int, phi: float) -> np.ndarray:
-    """Stationary AR(1) with unit marginal variance (started from its stationary law)."""
-    eps = rng.standard_normal(n)
-    e = np.empty(n)
-    e[0] = eps[0]
-    s = math.sqrt(1.0 - phi * phi)
-    for i in range(1, n):
-        e[i] = phi * e[i - 1] + s * eps[i]
-    return e
-
-
-def trend(x: np.ndarray) -> np.ndarray:
-    return np.sin(2.0 * math.pi * x) + 0.5 * x
+from .noise_series import ar1, trend
 
 
 def test_diagnosis_size_under_independent_noise() -> None:
