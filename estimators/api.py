@@ -248,11 +248,11 @@ def fit(
             sample, kern, deg, bandwidth, engine, requested,
             dict(selector=selector, rule=rule, candidates=candidates, bandwidth_min=bandwidth_min, bandwidth_max=bandwidth_max),
         )
-    choice = choose_noise(sample, requested)
     selection = None
     if isinstance(bandwidth, str):
         if bandwidth != "auto":
             raise ValueError(f"bandwidth must be a positive number or 'auto', got {bandwidth!r}")
+        choice = choose_noise(sample, requested)
         selection = select_for_sample(
             sample,
             kern,
@@ -276,6 +276,7 @@ def fit(
         # the noise is diagnosed on the readings the resistant fit keeps: spikes are not noise of the curve
         rob = resistant_weights(sample, kern, deg, h, engine)
         sample = sample.reweighted(rob.weights)
+    if selection is None:
         choice = choose_noise(sample, requested)
     cautions = []
     if sample.n_used < 2 * (deg + 2):
